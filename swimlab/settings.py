@@ -37,6 +37,13 @@ class LabSettings:
     noise_ratio_max: float = 3.0
     """Largest residual standard deviation of a phase's fit as a multiple of the sensor noise.
     [-] Common practice."""
+    curvature_t_max: float = 5.0
+    """Largest |t| of the quadratic term of a measure phase's decline before it counts as curved
+    (with :attr:`curvature_slope_change_max`). [-] Common practice (a t of 5 is far beyond chance
+    for white sensor noise)."""
+    curvature_slope_change_max: float = 0.25
+    """Largest change of the slope across a measure phase, as a share of the slope, under a
+    quadratic fit, before the decline counts as curved. [-] Common practice."""
     oxygen_floor_pct_air_sat: float = 80.0
     """Oxygen below which the fish must not be held and a phase's MO2 is suspect (welfare and
     data). [% air saturation] Common practice (intermittent-flow guidance keeps oxygen above
