@@ -1,0 +1,1 @@
+"""Published JSON Schemas of swimlab's files (data only; see docs/bundle_format.md)."""

@@ -1,0 +1,1196 @@
+"""The lab book: sessions, raw files, the audit trail and sign-off (DESIGN.md §4).
+
+One :class:`LabBook` over SQLAlchemy 2 (Core) keeps
+
+- **sessions** with a version number. A save names the version it was based on; a save based
+  on a stale version is refused with :class:`~swimlab.errors.ConflictError`, which says what
+  changed meanwhile and who changed it (optimistic concurrency; never a silent merge). Every
+  saved version's document is kept in ``session_versions``, so nothing is ever lost.
+- **raw files** by SHA-256: inserted once, never updated; bytes whose checksum does not match
+  are refused.
+- an **append-only audit trail**: who, when (UTC), what (field-level changes as a flat
+  dotted-path diff of the two JSON documents), why, and the version after.
+- each session's **status**: draft → submitted → approved, or returned with a comment. An
+  approved session is read-only until it is reopened with a reason. A reviewer must differ from
+  the session's operator and from the person who submitted it (four eyes).
+- the **lab settings** (overrides of :class:`~swimlab.settings.LabSettings`) and remembered
+  column mappings of logger files, keyed by a fingerprint of the file's header.
+
+Where it lives: the URL given to :meth:`LabBook.open`, else the environment variable
+``SWIMLAB_DATABASE_URL``, else ``database_url`` in ``swimlab.toml`` in the working folder or in
+``~/.config/swimlab/settings.toml``, else SQLite at ``./labbook/swimlab.sqlite`` (folder made on
+first run). SQLite runs in WAL mode with foreign keys on, a busy timeout, and every transaction
+taken with ``BEGIN IMMEDIATE`` so that two writers queue rather than fail half-way; PostgreSQL
+(``postgresql+psycopg://…``) serves a department.
+
+Schema changes are a short ordered list of DDL steps (:data:`MIGRATIONS`) recorded in a
+``schema_version`` table, applied in one transaction when a lab book is opened. Not Alembic:
+that is one dependency less, the lab book has six tables, and the same few statements must run
+on SQLite and PostgreSQL alike, which plain DDL with two small dialect substitutions does. The
+append-only tables are also guarded in the database itself by triggers, so that no other
+program can rewrite the trail either.
+
+Each public method that writes runs in exactly one transaction: it commits whole or not at all.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+import json
+import os
+import tomllib
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import sqlalchemy as sa
+from sqlalchemy import event
+from sqlalchemy.engine import Connection, Engine, make_url
+from sqlalchemy.exc import ArgumentError, DBAPIError, NoSuchModuleError
+
+from swimlab.errors import ConflictError, InputError, PermissionDeniedError
+from swimlab.session import STATUSES, Session, validate_session
+from swimlab.settings import LabSettings
+
+if TYPE_CHECKING:  # pragma: no cover
+    import pandas as pd
+
+ENV_URL = "SWIMLAB_DATABASE_URL"
+SETTINGS_FILE_LOCAL = "swimlab.toml"
+SETTINGS_FILE_USER = Path("~/.config/swimlab/settings.toml")
+DEFAULT_SQLITE_PATH = Path("labbook") / "swimlab.sqlite"
+BUSY_TIMEOUT_S = 15.0
+"""How long a SQLite writer waits for another writer to finish before giving up. [s]"""
+
+SESSION_LIST_COLUMNS = [
+    "session_id",
+    "title",
+    "fish",
+    "trial_date",
+    "temperature_c",
+    "status",
+    "operator",
+    "version",
+    "updated_at",
+]
+AUDIT_COLUMNS = ["id", "session_id", "at", "who", "action", "changes", "reason", "version"]
+
+_PG_LOCK_KEY = 0x5757_1AB0
+"""Advisory lock taken by PostgreSQL migrations so that two openers do not race."""
+
+
+# --------------------------------------------------------------------------------------------
+# Errors and values
+# --------------------------------------------------------------------------------------------
+
+
+class UnknownSessionError(InputError):
+    """No session with this id is in the lab book."""
+
+
+@dataclass(frozen=True)
+class StoredSession:
+    """A session as the lab book holds it.
+
+    Attributes
+    ----------
+    session
+        The validated session document of the current version.
+    version
+        The current version (1 for a new session); pass it as ``base_version`` when saving.
+    status
+        One of :data:`swimlab.session.STATUSES`.
+    return_comment
+        The reviewer's comment when the session was returned, else ``""``.
+    updated_at, updated_by
+        When (UTC, ISO 8601) and by whom the session last changed (document or status).
+    """
+
+    session: Session
+    version: int
+    status: str
+    return_comment: str = ""
+    updated_at: str = ""
+    updated_by: str = ""
+
+
+# --------------------------------------------------------------------------------------------
+# Field-level diffs
+# --------------------------------------------------------------------------------------------
+
+_ABSENT = object()
+
+
+def flatten_document(document: Any, prefix: str = "") -> dict[str, Any]:
+    """Flatten nested dicts and lists to {dotted path: scalar} (``fish.0.mass_g``).
+
+    Empty dicts and lists are kept as leaves, so that emptying a list shows in a diff.
+    """
+    out: dict[str, Any] = {}
+    if isinstance(document, dict):
+        if not document and prefix:
+            out[prefix] = {}
+        for key, value in document.items():
+            out.update(flatten_document(value, f"{prefix}.{key}" if prefix else str(key)))
+    elif isinstance(document, list):
+        if not document and prefix:
+            out[prefix] = []
+        for index, value in enumerate(document):
+            out.update(flatten_document(value, f"{prefix}.{index}" if prefix else str(index)))
+    else:
+        out[prefix] = document
+    return out
+
+
+def _same(a: Any, b: Any) -> bool:
+    if a is _ABSENT or b is _ABSENT:
+        return a is b
+    if isinstance(a, bool) or isinstance(b, bool):
+        return type(a) is type(b) and a == b
+    if isinstance(a, int | float) and isinstance(b, int | float):
+        return a == b  # 3 and 3.0 are the same value in JSON
+    return type(a) is type(b) and a == b
+
+
+def diff_documents(old: Any, new: Any) -> list[dict[str, Any]]:
+    """Field-level changes from ``old`` to ``new``: ``[{"field", "from", "to"}, …]``.
+
+    Paths are those of :func:`flatten_document`, in the order they appear (old first); a field
+    that is absent on one side shows ``None`` there.
+    """
+    before, after = flatten_document(old), flatten_document(new)
+    changes = []
+    for path in [*before, *(p for p in after if p not in before)]:
+        a, b = before.get(path, _ABSENT), after.get(path, _ABSENT)
+        if not _same(a, b):
+            changes.append(
+                {"field": path, "from": None if a is _ABSENT else a, "to": None if b is _ABSENT else b}
+            )
+    return changes
+
+
+# --------------------------------------------------------------------------------------------
+# Where the lab book lives
+# --------------------------------------------------------------------------------------------
+
+
+def _settings_file_url(path: Path) -> str | None:
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        return None
+    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        raise InputError(f"is not valid TOML: {exc}", file=str(path)) from exc
+    value = data.get("database_url")
+    if value is None:
+        return None
+    if not isinstance(value, str) or not value.strip():
+        raise InputError(f"must be a database URL (text); got {value!r}", file=str(path), field="database_url")
+    return value.strip()
+
+
+def resolve_database_url(
+    url: str | None = None,
+    *,
+    environ: Mapping[str, str] | None = None,
+    cwd: str | os.PathLike | None = None,
+    home: str | os.PathLike | None = None,
+) -> tuple[str, str]:
+    """Decide which database the lab book uses.
+
+    Returns
+    -------
+    url, source
+        ``source`` says where the URL came from: ``"argument"``, ``"environment"``, the
+        settings file's path, or ``"default"`` (SQLite at ``./labbook/swimlab.sqlite``).
+    """
+    environ = os.environ if environ is None else environ
+    where = Path(cwd) if cwd is not None else Path.cwd()
+    if url is not None and str(url).strip():
+        return str(url).strip(), "argument"
+    if environ.get(ENV_URL, "").strip():
+        return environ[ENV_URL].strip(), "environment"
+    user_file = (
+        Path(home) / ".config" / "swimlab" / "settings.toml" if home is not None else SETTINGS_FILE_USER.expanduser()
+    )
+    for candidate in (where / SETTINGS_FILE_LOCAL, user_file):
+        found = _settings_file_url(candidate)
+        if found:
+            return found, str(candidate)
+    return f"sqlite:///{(where / DEFAULT_SQLITE_PATH).resolve()}", "default"
+
+
+def _normalise_url(url: str) -> sa.URL:
+    try:
+        parsed = make_url(url)
+    except ArgumentError as exc:
+        raise InputError(f"is not a database URL: {url!r}", field="database_url") from exc
+    backend = parsed.get_backend_name()
+    if backend in ("postgres", "postgresql"):
+        driver = parsed.get_driver_name()
+        if parsed.drivername in ("postgres", "postgresql") or driver == "psycopg2":
+            parsed = parsed.set(drivername="postgresql+psycopg")
+    elif backend != "sqlite":
+        raise InputError(
+            f"names the {backend!r} database; the lab book runs on 'sqlite' or 'postgresql'",
+            field="database_url",
+        )
+    return parsed
+
+
+# --------------------------------------------------------------------------------------------
+# Tables and migrations
+# --------------------------------------------------------------------------------------------
+
+metadata = sa.MetaData()
+
+sessions_table = sa.Table(
+    "sessions",
+    metadata,
+    sa.Column("id", sa.String(64), primary_key=True),
+    sa.Column("version", sa.Integer, nullable=False),
+    sa.Column("status", sa.String(16), nullable=False),
+    sa.Column("title", sa.Text, nullable=False),
+    sa.Column("operator", sa.Text, nullable=False),
+    sa.Column("fish_ids", sa.Text, nullable=False),
+    sa.Column("temperature_c", sa.Float),
+    sa.Column("trial_date", sa.String(10)),
+    sa.Column("document", sa.Text, nullable=False),
+    sa.Column("return_comment", sa.Text, nullable=False),
+    sa.Column("created_at", sa.String(40), nullable=False),
+    sa.Column("updated_at", sa.String(40), nullable=False),
+    sa.Column("updated_by", sa.Text, nullable=False),
+)
+versions_table = sa.Table(
+    "session_versions",
+    metadata,
+    sa.Column("session_id", sa.String(64), primary_key=True),
+    sa.Column("version", sa.Integer, primary_key=True),
+    sa.Column("document", sa.Text, nullable=False),
+    sa.Column("saved_at", sa.String(40), nullable=False),
+    sa.Column("saved_by", sa.Text, nullable=False),
+)
+raw_files_table = sa.Table(
+    "raw_files",
+    metadata,
+    sa.Column("sha256", sa.String(64), primary_key=True),
+    sa.Column("name", sa.Text, nullable=False),
+    sa.Column("data", sa.LargeBinary, nullable=False),
+    sa.Column("size", sa.BigInteger, nullable=False),
+    sa.Column("added_at", sa.String(40), nullable=False),
+)
+links_table = sa.Table(
+    "session_raw_files",
+    metadata,
+    sa.Column("session_id", sa.String(64), primary_key=True),
+    sa.Column("sha256", sa.String(64), primary_key=True),
+)
+audit_table = sa.Table(
+    "audit",
+    metadata,
+    sa.Column("id", sa.Integer, primary_key=True, autoincrement=True),
+    sa.Column("session_id", sa.String(64)),
+    sa.Column("at", sa.String(40), nullable=False),
+    sa.Column("who", sa.Text, nullable=False),
+    sa.Column("action", sa.String(32), nullable=False),
+    sa.Column("changes", sa.Text, nullable=False),
+    sa.Column("reason", sa.Text, nullable=False),
+    sa.Column("version_after", sa.Integer),
+)
+lab_settings_table = sa.Table(
+    "lab_settings",
+    metadata,
+    sa.Column("id", sa.Integer, primary_key=True),
+    sa.Column("settings", sa.Text, nullable=False),
+    sa.Column("mappings", sa.Text, nullable=False),
+    sa.Column("updated_at", sa.String(40), nullable=False),
+    sa.Column("updated_by", sa.Text, nullable=False),
+)
+schema_version_table = sa.Table(
+    "schema_version",
+    metadata,
+    sa.Column("version", sa.Integer, primary_key=True),
+    sa.Column("description", sa.Text, nullable=False),
+    sa.Column("applied_at", sa.String(40), nullable=False),
+)
+
+_DIALECT_WORDS = {
+    "sqlite": {"blob": "BLOB", "serial_pk": "INTEGER PRIMARY KEY AUTOINCREMENT"},
+    "postgresql": {"blob": "BYTEA", "serial_pk": "BIGINT GENERATED BY DEFAULT AS IDENTITY PRIMARY KEY"},
+}
+
+_SCHEMA_VERSION_DDL = (
+    "CREATE TABLE IF NOT EXISTS schema_version ("
+    " version INTEGER PRIMARY KEY,"
+    " description TEXT NOT NULL,"
+    " applied_at VARCHAR(40) NOT NULL)"
+)
+
+_STATUS_CHECK = ", ".join(f"'{s}'" for s in STATUSES)
+
+_STEP_1 = [
+    f"""CREATE TABLE sessions (
+        id VARCHAR(64) PRIMARY KEY,
+        version INTEGER NOT NULL CHECK (version >= 1),
+        status VARCHAR(16) NOT NULL CHECK (status IN ({_STATUS_CHECK})),
+        title TEXT NOT NULL,
+        operator TEXT NOT NULL,
+        fish_ids TEXT NOT NULL,
+        temperature_c DOUBLE PRECISION,
+        trial_date VARCHAR(10),
+        document TEXT NOT NULL,
+        return_comment TEXT NOT NULL DEFAULT '',
+        created_at VARCHAR(40) NOT NULL,
+        updated_at VARCHAR(40) NOT NULL,
+        updated_by TEXT NOT NULL)""",
+    """CREATE TABLE session_versions (
+        session_id VARCHAR(64) NOT NULL REFERENCES sessions (id),
+        version INTEGER NOT NULL CHECK (version >= 1),
+        document TEXT NOT NULL,
+        saved_at VARCHAR(40) NOT NULL,
+        saved_by TEXT NOT NULL,
+        PRIMARY KEY (session_id, version))""",
+    """CREATE TABLE raw_files (
+        sha256 VARCHAR(64) PRIMARY KEY,
+        name TEXT NOT NULL,
+        data {blob} NOT NULL,
+        size BIGINT NOT NULL CHECK (size >= 0),
+        added_at VARCHAR(40) NOT NULL)""",
+    """CREATE TABLE session_raw_files (
+        session_id VARCHAR(64) NOT NULL REFERENCES sessions (id),
+        sha256 VARCHAR(64) NOT NULL REFERENCES raw_files (sha256),
+        PRIMARY KEY (session_id, sha256))""",
+    """CREATE TABLE audit (
+        id {serial_pk},
+        session_id VARCHAR(64) REFERENCES sessions (id),
+        at VARCHAR(40) NOT NULL,
+        who TEXT NOT NULL,
+        action VARCHAR(32) NOT NULL,
+        changes TEXT NOT NULL,
+        reason TEXT NOT NULL,
+        version_after INTEGER)""",
+    """CREATE TABLE lab_settings (
+        id INTEGER PRIMARY KEY CHECK (id = 1),
+        settings TEXT NOT NULL,
+        mappings TEXT NOT NULL,
+        updated_at VARCHAR(40) NOT NULL,
+        updated_by TEXT NOT NULL)""",
+    "INSERT INTO lab_settings (id, settings, mappings, updated_at, updated_by)"
+    " VALUES (1, '{{}}', '{{}}', '{now}', 'swimlab')",
+]
+
+_APPEND_ONLY = ("audit", "session_versions", "raw_files")
+
+_STEP_2 = {
+    "common": [
+        "CREATE INDEX audit_by_session ON audit (session_id, id)",
+        "CREATE INDEX sessions_by_status ON sessions (status, updated_at)",
+    ],
+    "sqlite": [
+        f"CREATE TRIGGER {table}_no_{verb.lower()} BEFORE {verb} ON {table} "
+        f"BEGIN SELECT RAISE(ABORT, 'the {table} table is append-only'); END"
+        for table in _APPEND_ONLY
+        for verb in ("UPDATE", "DELETE")
+    ],
+    "postgresql": [
+        "CREATE FUNCTION swimlab_refuse_change() RETURNS trigger LANGUAGE plpgsql AS $$ "
+        "BEGIN RAISE EXCEPTION USING MESSAGE = 'the ' || TG_TABLE_NAME || ' table is append-only'; "
+        "END $$",
+        *(
+            f"CREATE TRIGGER {table}_append_only BEFORE UPDATE OR DELETE ON {table} "
+            "FOR EACH ROW EXECUTE FUNCTION swimlab_refuse_change()"
+            for table in _APPEND_ONLY
+        ),
+    ],
+}
+
+
+@dataclass(frozen=True)
+class Migration:
+    """One schema step: its number, what it does, and its statements per dialect."""
+
+    version: int
+    description: str
+    common: tuple[str, ...] = ()
+    by_dialect: tuple[tuple[str, tuple[str, ...]], ...] = ()
+
+    def statements(self, dialect: str, now: str) -> list[str]:
+        """The statements for ``dialect`` (``sqlite`` or ``postgresql``)."""
+        words = {**_DIALECT_WORDS[dialect], "now": now}
+        extra = dict(self.by_dialect).get(dialect, ())
+        return [stmt.format(**words) for stmt in self.common] + list(extra)
+
+
+MIGRATIONS: tuple[Migration, ...] = (
+    Migration(1, "sessions, versions, raw files, audit trail, lab settings", tuple(_STEP_1)),
+    Migration(
+        2,
+        "indexes for listing and the trail; append-only guards",
+        tuple(s.replace("{", "{{").replace("}", "}}") for s in _STEP_2["common"]),
+        (("sqlite", tuple(_STEP_2["sqlite"])), ("postgresql", tuple(_STEP_2["postgresql"]))),
+    ),
+)
+"""The ordered schema steps. Append new steps; never edit a released one."""
+
+LATEST_SCHEMA = MIGRATIONS[-1].version
+
+
+# --------------------------------------------------------------------------------------------
+# Helpers
+# --------------------------------------------------------------------------------------------
+
+
+def _now() -> str:
+    return dt.datetime.now(dt.UTC).isoformat(timespec="microseconds")
+
+
+def _dumps(value: Any) -> str:
+    return json.dumps(value, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
+
+
+def _sha256(data: bytes) -> str:
+    return hashlib.sha256(data).hexdigest()
+
+
+def _person(value: Any, field: str = "who") -> str:
+    if not isinstance(value, str) or not value.strip():
+        raise InputError(f"must name the person acting (non-empty text); got {value!r}", field=field)
+    if len(value) > 200:
+        raise InputError("must be at most 200 characters", field=field)
+    return value.strip()
+
+
+def _text(value: Any, field: str, *, required: bool, min_length: int = 1) -> str:
+    if not isinstance(value, str):
+        raise InputError(f"must be text; got {value!r}", field=field)
+    value = value.strip()
+    if required and len(value) < min_length:
+        raise InputError(f"is required (at least {min_length} characters); got {value!r}", field=field)
+    return value
+
+
+def _same_person(a: str, b: str) -> bool:
+    return bool(a.strip()) and a.strip().casefold() == b.strip().casefold()
+
+
+def _checked_document(session: Session) -> dict[str, Any]:
+    if not isinstance(session, Session):
+        raise InputError(f"must be a Session; got {type(session).__name__}", field="session")
+    document = session.to_json_dict()
+    checked, problems = validate_session(document)
+    if checked is None:
+        raise InputError(
+            "the session is not valid: " + "; ".join(str(p) for p in problems),
+            field=problems[0].field if problems else None,
+        )
+    return document
+
+
+def _as_bytes(data: Any, field: str) -> bytes:
+    if isinstance(data, bytes | bytearray | memoryview):
+        return bytes(data)
+    raise InputError(f"must be bytes; got {type(data).__name__}", field=field)
+
+
+def _summary(document: Mapping[str, Any]) -> dict[str, Any]:
+    return {
+        "title": document["title"],
+        "operator": document.get("operator", ""),
+        "fish_ids": ", ".join(f["fish_id"] for f in document["fish"]),
+        "temperature_c": document["water"]["temperature_c"],
+        "trial_date": document.get("trial_date"),
+    }
+
+
+def _list_fields(fields: list[str], limit: int = 8) -> str:
+    shown = ", ".join(fields[:limit])
+    return shown + (f" and {len(fields) - limit} more" if len(fields) > limit else "")
+
+
+# --------------------------------------------------------------------------------------------
+# The lab book
+# --------------------------------------------------------------------------------------------
+
+
+class LabBook:
+    """The running store of a lab. Open with :meth:`LabBook.open`; close with :meth:`close`."""
+
+    def __init__(self, engine: Engine, *, url: str, source: str) -> None:
+        self._engine = engine
+        self.url = url
+        """The database URL, password hidden."""
+        self.source = source
+        """Where the URL came from (see :func:`resolve_database_url`)."""
+        self.dialect = engine.dialect.name
+
+    # -- opening ------------------------------------------------------------------------------
+    @classmethod
+    def open(cls, url: str | None = None) -> LabBook:
+        """Open (and create or upgrade) the lab book.
+
+        Parameters
+        ----------
+        url
+            SQLAlchemy database URL (``sqlite:///path``, ``postgresql+psycopg://user@host/db``);
+            when ``None``, see :func:`resolve_database_url`.
+
+        Raises
+        ------
+        InputError
+            If the URL is not usable, the database cannot be reached, or it was made by a newer
+            swimlab.
+        """
+        raw_url, source = resolve_database_url(url)
+        parsed = _normalise_url(raw_url)
+        shown = parsed.render_as_string(hide_password=True)
+        if parsed.get_backend_name() == "sqlite":
+            engine = cls._sqlite_engine(parsed, create_folder=source == "default")
+        else:
+            engine = sa.create_engine(parsed, pool_pre_ping=True)
+        book = cls(engine, url=shown, source=source)
+        try:
+            book._migrate()
+        except DBAPIError as exc:
+            engine.dispose()
+            first = str(exc.orig).strip().splitlines()[0] if exc.orig else str(exc)
+            raise InputError(f"cannot open the lab book at {shown}: {first}", field="database_url") from exc
+        except BaseException:
+            engine.dispose()
+            raise
+        return book
+
+    @staticmethod
+    def _sqlite_engine(parsed: sa.URL, *, create_folder: bool) -> Engine:
+        database = parsed.database or ""
+        in_memory = database in ("", ":memory:") or database.startswith("file::memory:")
+        options: dict[str, Any] = {}
+        if in_memory:
+            options = {"poolclass": sa.pool.StaticPool, "connect_args": {"check_same_thread": False}}
+        else:
+            folder = Path(database).expanduser().resolve().parent
+            if create_folder:
+                folder.mkdir(parents=True, exist_ok=True)
+            elif not folder.is_dir():
+                raise InputError("the folder for the lab book does not exist", file=str(folder), field="database_url")
+            options = {"connect_args": {"timeout": BUSY_TIMEOUT_S}}
+        try:
+            engine = sa.create_engine(parsed, **options)
+        except (ArgumentError, NoSuchModuleError) as exc:
+            raise InputError(f"is not usable: {exc}", field="database_url") from exc
+
+        @event.listens_for(engine, "connect")
+        def _on_connect(dbapi_connection, _record):  # pragma: no cover - exercised via engine
+            # Take transactions into our own hands (pysqlite otherwise defers BEGIN).
+            dbapi_connection.isolation_level = None
+            cursor = dbapi_connection.cursor()
+            cursor.execute("PRAGMA foreign_keys = ON")
+            cursor.execute(f"PRAGMA busy_timeout = {int(BUSY_TIMEOUT_S * 1000)}")
+            if not in_memory:
+                cursor.execute("PRAGMA journal_mode = WAL")
+            cursor.execute("PRAGMA synchronous = FULL")
+            cursor.close()
+
+        @event.listens_for(engine, "begin")
+        def _on_begin(connection):  # pragma: no cover - exercised via engine
+            # IMMEDIATE: take the write lock at the start, so two writers queue (busy timeout)
+            # instead of one failing after it has read.
+            connection.exec_driver_sql("BEGIN IMMEDIATE")
+
+        return engine
+
+    def _migrate(self, upto: int | None = None) -> int:
+        """Apply pending schema steps (all, or up to ``upto``) in one transaction."""
+        target = LATEST_SCHEMA if upto is None else upto
+        with self._engine.begin() as conn:
+            if self.dialect == "postgresql":
+                conn.exec_driver_sql(f"SELECT pg_advisory_xact_lock({_PG_LOCK_KEY})")
+            conn.exec_driver_sql(_SCHEMA_VERSION_DDL)
+            current = conn.execute(sa.select(sa.func.max(schema_version_table.c.version))).scalar() or 0
+            if current > LATEST_SCHEMA:
+                raise InputError(
+                    f"the lab book's schema is version {current}, newer than this swimlab knows "
+                    f"({LATEST_SCHEMA}); update swimlab",
+                    field="database_url",
+                )
+            now = _now()
+            for step in MIGRATIONS:
+                if current < step.version <= target:
+                    for statement in step.statements(self.dialect, now):
+                        conn.exec_driver_sql(statement)
+                    conn.execute(
+                        schema_version_table.insert().values(
+                            version=step.version, description=step.description, applied_at=now
+                        )
+                    )
+                    current = step.version
+        return current
+
+    def schema_version(self) -> int:
+        """The schema version of the open lab book."""
+        with self._engine.connect() as conn:
+            return int(conn.execute(sa.select(sa.func.max(schema_version_table.c.version))).scalar() or 0)
+
+    def close(self) -> None:
+        """Release the database connections."""
+        self._engine.dispose()
+
+    def __enter__(self) -> LabBook:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    def __repr__(self) -> str:
+        return f"LabBook({self.url!r})"
+
+    # -- internals ----------------------------------------------------------------------------
+    def _locked_row(self, conn: Connection, session_id: str):
+        query = sa.select(sessions_table).where(sessions_table.c.id == session_id)
+        if self.dialect == "postgresql":
+            query = query.with_for_update()
+        row = conn.execute(query).mappings().first()
+        if row is None:
+            raise UnknownSessionError(f"no session {session_id!r} in the lab book", field="session_id")
+        return row
+
+    def _insert_raw(self, conn: Connection, sha: str, data: bytes, name: str) -> None:
+        if self.dialect == "postgresql":
+            from sqlalchemy.dialects.postgresql import insert
+        else:
+            from sqlalchemy.dialects.sqlite import insert
+        statement = insert(raw_files_table).values(
+            sha256=sha, name=name, data=data, size=len(data), added_at=_now()
+        )
+        conn.execute(statement.on_conflict_do_nothing(index_elements=["sha256"]))
+
+    def _store_raw_files(self, conn: Connection, session: Session, raw_files: Mapping[str, bytes] | None) -> None:
+        names = {ref.sha256: ref.name for ref in session.raw_files}
+        for sha, data in (raw_files or {}).items():
+            data = _as_bytes(data, f"raw_files.{sha}")
+            actual = _sha256(data)
+            if actual != sha:
+                raise InputError(
+                    f"the bytes have checksum {actual}, not the one they are given under; "
+                    "nothing was saved",
+                    field=f"raw_files.{sha}",
+                )
+            self._insert_raw(conn, sha, data, names.get(sha, ""))
+        wanted = [ref.sha256 for ref in session.raw_files]
+        if wanted:
+            present = set(
+                conn.execute(
+                    sa.select(raw_files_table.c.sha256).where(raw_files_table.c.sha256.in_(set(wanted)))
+                ).scalars()
+            )
+            for i, ref in enumerate(session.raw_files):
+                if ref.sha256 not in present:
+                    raise InputError(
+                        f"refers to raw file {ref.name!r}, which is not in the lab book and was "
+                        "not given; nothing was saved",
+                        field=f"raw_files.{i}.sha256",
+                    )
+
+    def _link_raw_files(self, conn: Connection, session_id: str, session: Session) -> None:
+        linked = set(
+            conn.execute(sa.select(links_table.c.sha256).where(links_table.c.session_id == session_id)).scalars()
+        )
+        for sha in dict.fromkeys(ref.sha256 for ref in session.raw_files):
+            if sha not in linked:
+                conn.execute(links_table.insert().values(session_id=session_id, sha256=sha))
+
+    def _audit(
+        self,
+        conn: Connection,
+        *,
+        session_id: str | None,
+        who: str,
+        action: str,
+        changes: list[dict[str, Any]],
+        reason: str,
+        version: int | None,
+        at: str,
+    ) -> None:
+        conn.execute(
+            audit_table.insert().values(
+                session_id=session_id,
+                at=at,
+                who=who,
+                action=action,
+                changes=_dumps(changes),
+                reason=reason,
+                version_after=version,
+            )
+        )
+
+    def _conflict(self, conn: Connection, session_id: str, base_version: int, row) -> ConflictError:
+        current = int(row["version"])
+        if base_version > current or base_version < 1:
+            error = ConflictError(
+                f"session {session_id!r} has no version {base_version}; it is at version "
+                f"{current}. Nothing was saved; reload the session."
+            )
+            error.current_version, error.changes = current, []
+            return error
+        entries = conn.execute(
+            sa.select(audit_table.c.who, audit_table.c.version_after, audit_table.c.changes, audit_table.c.action)
+            .where(audit_table.c.session_id == session_id)
+            .where(audit_table.c.version_after > base_version)
+            .where(audit_table.c.action == "saved")
+            .order_by(audit_table.c.id)
+        ).all()
+        changes = [
+            {
+                "version": entry.version_after,
+                "who": entry.who,
+                "fields": [c["field"] for c in json.loads(entry.changes)],
+            }
+            for entry in entries
+        ]
+        described = "; ".join(
+            f"version {c['version']} by {c['who']}: {_list_fields(c['fields'])}" for c in changes
+        )
+        error = ConflictError(
+            f"session {session_id!r} changed since version {base_version}, which your edit was "
+            f"based on; it is now version {current}. Changed meanwhile: {described or 'nothing recorded'}. "
+            "Nothing of yours was saved; reload the session and apply your changes again."
+        )
+        error.current_version, error.changes = current, changes
+        return error
+
+    # -- sessions -----------------------------------------------------------------------------
+    def create_session(
+        self,
+        session: Session,
+        raw_files: Mapping[str, bytes] | None = None,
+        *,
+        who: str,
+        reason: str = "created",
+    ) -> int:
+        """Add a new session (status draft) with the raw files it refers to.
+
+        Parameters
+        ----------
+        session
+            The new session; its ``session_id`` must not be in the lab book yet.
+        raw_files
+            Bytes of raw files, keyed by SHA-256 (hex). Files already in the lab book may be
+            left out.
+        who, reason
+            For the audit trail.
+
+        Returns
+        -------
+        int
+            The version, 1.
+
+        Raises
+        ------
+        ConflictError
+            If a session with this id exists.
+        InputError
+            If the session is not valid, a raw file's bytes do not match its checksum, or the
+            session refers to a raw file the lab book does not have.
+        """
+        who = _person(who)
+        reason = _text(reason, "reason", required=False)
+        document = _checked_document(session)
+        session_id = session.session_id
+        at = _now()
+        with self._engine.begin() as conn:
+            exists = conn.execute(sa.select(sessions_table.c.id).where(sessions_table.c.id == session_id)).first()
+            if exists:
+                raise ConflictError(
+                    f"a session with id {session_id!r} is already in the lab book; nothing was saved"
+                )
+            self._store_raw_files(conn, session, raw_files)
+            text = _dumps(document)
+            conn.execute(
+                sessions_table.insert().values(
+                    id=session_id,
+                    version=1,
+                    status="draft",
+                    document=text,
+                    return_comment="",
+                    created_at=at,
+                    updated_at=at,
+                    updated_by=who,
+                    **_summary(document),
+                )
+            )
+            conn.execute(
+                versions_table.insert().values(session_id=session_id, version=1, document=text, saved_at=at, saved_by=who)
+            )
+            self._link_raw_files(conn, session_id, session)
+            self._audit(conn, session_id=session_id, who=who, action="created", changes=[], reason=reason, version=1, at=at)
+        return 1
+
+    def save_session(
+        self,
+        session: Session,
+        *,
+        base_version: int,
+        who: str,
+        reason: str,
+        raw_files: Mapping[str, bytes] | None = None,
+    ) -> int:
+        """Save an edited session as a new version.
+
+        Parameters
+        ----------
+        session
+            The edited session (same ``session_id``).
+        base_version
+            The version the edit started from (:attr:`StoredSession.version`).
+        who, reason
+            For the audit trail.
+        raw_files
+            Bytes of raw files newly referred to, keyed by SHA-256 (hex).
+
+        Returns
+        -------
+        int
+            The new version; the current one unchanged when the document did not change
+            (nothing is written then).
+
+        Raises
+        ------
+        ConflictError
+            If the session was saved by someone else since ``base_version``: the message lists
+            each later version, who saved it, and the fields it changed.
+        PermissionDeniedError
+            If the session is approved (reopen it first, with a reason).
+        UnknownSessionError, InputError
+            If there is no such session, or the session or a raw file is not valid.
+
+        Notes
+        -----
+        Saving a submitted session takes it back to draft, so that a reviewer never approves a
+        version they were not sent.
+        """
+        who = _person(who)
+        reason = _text(reason, "reason", required=False)
+        if isinstance(base_version, bool) or not isinstance(base_version, int):
+            raise InputError(f"must be a whole number; got {base_version!r}", field="base_version")
+        document = _checked_document(session)
+        session_id = session.session_id
+        at = _now()
+        with self._engine.begin() as conn:
+            row = self._locked_row(conn, session_id)
+            if row["status"] == "approved":
+                raise PermissionDeniedError(
+                    f"session {session_id!r} is approved and read-only; reopen it with a reason "
+                    "before editing. Nothing was saved."
+                )
+            if int(row["version"]) != base_version:
+                raise self._conflict(conn, session_id, base_version, row)
+            changes = diff_documents(json.loads(row["document"]), document)
+            if not changes:
+                return base_version
+            status = "draft" if row["status"] == "submitted" else row["status"]
+            if status != row["status"]:
+                changes.append({"field": "status", "from": row["status"], "to": status})
+            self._store_raw_files(conn, session, raw_files)
+            new_version = base_version + 1
+            text = _dumps(document)
+            result = conn.execute(
+                sessions_table.update()
+                .where(sessions_table.c.id == session_id)
+                .where(sessions_table.c.version == base_version)
+                .values(version=new_version, status=status, document=text, updated_at=at, updated_by=who, **_summary(document))
+            )
+            if result.rowcount != 1:  # pragma: no cover - guarded by the locked read above
+                raise self._conflict(conn, session_id, base_version, self._locked_row(conn, session_id))
+            conn.execute(
+                versions_table.insert().values(
+                    session_id=session_id, version=new_version, document=text, saved_at=at, saved_by=who
+                )
+            )
+            self._link_raw_files(conn, session_id, session)
+            self._audit(
+                conn, session_id=session_id, who=who, action="saved", changes=changes, reason=reason,
+                version=new_version, at=at,
+            )
+        return new_version
+
+    def get_session(self, session_id: str) -> StoredSession:
+        """Return the current version of a session.
+
+        Raises
+        ------
+        UnknownSessionError
+            If there is no such session.
+        """
+        with self._engine.connect() as conn:
+            row = conn.execute(sa.select(sessions_table).where(sessions_table.c.id == session_id)).mappings().first()
+        if row is None:
+            raise UnknownSessionError(f"no session {session_id!r} in the lab book", field="session_id")
+        return StoredSession(
+            session=Session.from_json_dict(json.loads(row["document"])),
+            version=int(row["version"]),
+            status=row["status"],
+            return_comment=row["return_comment"],
+            updated_at=row["updated_at"],
+            updated_by=row["updated_by"],
+        )
+
+    def get_session_version(self, session_id: str, version: int) -> Session:
+        """Return one saved version of a session (every version is kept)."""
+        with self._engine.connect() as conn:
+            text = conn.execute(
+                sa.select(versions_table.c.document)
+                .where(versions_table.c.session_id == session_id)
+                .where(versions_table.c.version == version)
+            ).scalar()
+        if text is None:
+            raise UnknownSessionError(f"no version {version} of session {session_id!r}", field="version")
+        return Session.from_json_dict(json.loads(text))
+
+    def session_history(self, session_id: str) -> pd.DataFrame:
+        """Every saved version of a session: version, saved_at, saved_by."""
+        import pandas as pd
+
+        with self._engine.connect() as conn:
+            rows = conn.execute(
+                sa.select(versions_table.c.version, versions_table.c.saved_at, versions_table.c.saved_by)
+                .where(versions_table.c.session_id == session_id)
+                .order_by(versions_table.c.version)
+            ).all()
+        return pd.DataFrame([tuple(r) for r in rows], columns=["version", "saved_at", "saved_by"])
+
+    def list_sessions(self, status: str | None = None) -> pd.DataFrame:
+        """One row per session, most recently changed first.
+
+        Columns: session_id, title, fish (ids, comma-separated), trial_date, temperature_c,
+        status, operator, version, updated_at.
+        """
+        import pandas as pd
+
+        if status is not None and status not in STATUSES:
+            raise ValueError(f"unknown status {status!r}; valid: {list(STATUSES)}")
+        t = sessions_table.c
+        query = sa.select(
+            t.id, t.title, t.fish_ids, t.trial_date, t.temperature_c, t.status, t.operator, t.version, t.updated_at
+        ).order_by(t.updated_at.desc(), t.id)
+        if status is not None:
+            query = query.where(t.status == status)
+        with self._engine.connect() as conn:
+            rows = conn.execute(query).all()
+        return pd.DataFrame([tuple(r) for r in rows], columns=SESSION_LIST_COLUMNS)
+
+    # -- status and sign-off ------------------------------------------------------------------
+    def _set_status(
+        self,
+        session_id: str,
+        *,
+        who: str,
+        action: str,
+        verb: str,
+        allowed: Iterable[str],
+        to: str,
+        reason: str,
+        return_comment: str = "",
+        reviewer: bool = False,
+        version: int | None = None,
+    ) -> StoredSession:
+        at = _now()
+        with self._engine.begin() as conn:
+            row = self._locked_row(conn, session_id)
+            status = row["status"]
+            if status not in allowed:
+                hint = " (reopen it with a reason first)" if status == "approved" else ""
+                raise PermissionDeniedError(
+                    f"cannot {verb} session {session_id!r}: its "
+                    f"status is {status!r}; this needs {' or '.join(repr(s) for s in allowed)}{hint}"
+                )
+            if version is not None and int(row["version"]) != version:
+                raise self._conflict(conn, session_id, version, row)
+            if reviewer:
+                operator = row["operator"] or ""
+                submitter = conn.execute(
+                    sa.select(audit_table.c.who)
+                    .where(audit_table.c.session_id == session_id)
+                    .where(audit_table.c.action == "submitted")
+                    .order_by(audit_table.c.id.desc())
+                    .limit(1)
+                ).scalar() or ""
+                if _same_person(who, operator) or _same_person(who, submitter):
+                    role = "operator" if _same_person(who, operator) else "person who submitted it"
+                    raise PermissionDeniedError(
+                        f"{who!r} is the {role} of session {session_id!r}; a different person must "
+                        "review it (four eyes)"
+                    )
+            changes = [{"field": "status", "from": status, "to": to}]
+            if return_comment != row["return_comment"]:
+                changes.append({"field": "return_comment", "from": row["return_comment"], "to": return_comment})
+            result = conn.execute(
+                sessions_table.update()
+                .where(sessions_table.c.id == session_id)
+                .where(sessions_table.c.status == status)
+                .values(status=to, return_comment=return_comment, updated_at=at, updated_by=who)
+            )
+            if result.rowcount != 1:  # pragma: no cover - guarded by the locked read above
+                raise ConflictError(f"the status of session {session_id!r} changed meanwhile; reload it")
+            self._audit(
+                conn, session_id=session_id, who=who, action=action, changes=changes, reason=reason,
+                version=int(row["version"]), at=at,
+            )
+        return self.get_session(session_id)
+
+    def submit(self, session_id: str, *, who: str, comment: str = "") -> StoredSession:
+        """Send a draft or returned session for review (status submitted)."""
+        return self._set_status(
+            session_id, who=_person(who), action="submitted", verb="submit", allowed=("draft", "returned"), to="submitted",
+            reason=_text(comment, "comment", required=False),
+        )
+
+    def approve(self, session_id: str, *, who: str, comment: str = "", version: int | None = None) -> StoredSession:
+        """Approve a submitted session; it becomes read-only.
+
+        ``who`` must differ from the session's operator and from whoever submitted it. Pass the
+        ``version`` that was reviewed to refuse approving a later one (ConflictError).
+        """
+        return self._set_status(
+            session_id, who=_person(who), action="approved", verb="approve", allowed=("submitted",), to="approved",
+            reason=_text(comment, "comment", required=False), reviewer=True, version=version,
+        )
+
+    def return_session(self, session_id: str, *, who: str, comment: str) -> StoredSession:
+        """Return a submitted session to its operator with a comment saying what to change."""
+        comment = _text(comment, "comment", required=True, min_length=3)
+        return self._set_status(
+            session_id, who=_person(who), action="returned", verb="return", allowed=("submitted",), to="returned",
+            reason=comment, return_comment=comment, reviewer=True,
+        )
+
+    def reopen(self, session_id: str, *, who: str, reason: str) -> StoredSession:
+        """Reopen an approved session for editing (status draft); the reason goes in the trail."""
+        reason = _text(reason, "reason", required=True, min_length=3)
+        return self._set_status(
+            session_id, who=_person(who), action="reopened", verb="reopen", allowed=("approved",), to="draft", reason=reason,
+        )
+
+    # -- raw files ----------------------------------------------------------------------------
+    def add_raw_file(self, data: bytes, name: str = "", *, sha256: str | None = None) -> str:
+        """Store a raw file's bytes unchanged; return its SHA-256 (hex).
+
+        Storing the same bytes again does nothing. When ``sha256`` is given, bytes with another
+        checksum are refused.
+        """
+        data = _as_bytes(data, "data")
+        actual = _sha256(data)
+        if sha256 is not None and actual != sha256:
+            raise InputError(
+                f"the bytes have checksum {actual}, not {sha256}; nothing was stored", field="sha256"
+            )
+        with self._engine.begin() as conn:
+            self._insert_raw(conn, actual, data, _text(name, "name", required=False))
+        return actual
+
+    def get_raw_file(self, sha256: str) -> bytes:
+        """Return a raw file's bytes, checked against their checksum."""
+        with self._engine.connect() as conn:
+            data = conn.execute(sa.select(raw_files_table.c.data).where(raw_files_table.c.sha256 == sha256)).scalar()
+        if data is None:
+            raise InputError(f"no raw file with checksum {sha256!r} in the lab book", field="sha256")
+        data = bytes(data)
+        if _sha256(data) != sha256:  # pragma: no cover - the database returned other bytes
+            raise InputError(f"the stored raw file {sha256} is damaged (checksum differs)", field="sha256")
+        return data
+
+    def raw_files_of(self, session: Session) -> dict[str, bytes]:
+        """The bytes of every raw file ``session`` refers to, keyed by SHA-256."""
+        return {ref.sha256: self.get_raw_file(ref.sha256) for ref in session.raw_files}
+
+    # -- audit trail --------------------------------------------------------------------------
+    def audit_trail(self, session_id: str | None) -> pd.DataFrame:
+        """The audit trail of a session (or, for ``None``, of the lab settings), oldest first.
+
+        Columns: id, session_id, at (UTC, ISO 8601), who, action, changes (list of
+        ``{"field", "from", "to"}``), reason, version (the version after the action).
+        """
+        import pandas as pd
+
+        t = audit_table.c
+        query = sa.select(t.id, t.session_id, t.at, t.who, t.action, t.changes, t.reason, t.version_after)
+        query = query.where(t.session_id.is_(None) if session_id is None else t.session_id == session_id)
+        with self._engine.connect() as conn:
+            rows = conn.execute(query.order_by(t.id)).all()
+        records = [
+            (r.id, r.session_id, r.at, r.who, r.action, json.loads(r.changes), r.reason, r.version_after)
+            for r in rows
+        ]
+        return pd.DataFrame(records, columns=AUDIT_COLUMNS)
+
+    # -- lab settings and remembered mappings -------------------------------------------------
+    def _settings_row(self, conn: Connection):
+        query = sa.select(lab_settings_table).where(lab_settings_table.c.id == 1)
+        if self.dialect == "postgresql":
+            query = query.with_for_update()
+        return conn.execute(query).mappings().one()
+
+    def get_lab_setting_overrides(self) -> dict[str, Any]:
+        """The lab's own values, only those that differ from the defaults' fields set."""
+        with self._engine.connect() as conn:
+            row = conn.execute(sa.select(lab_settings_table.c.settings).where(lab_settings_table.c.id == 1)).scalar()
+        return json.loads(row or "{}")
+
+    def get_lab_settings(self) -> LabSettings:
+        """The lab's settings: defaults with the lab's overrides applied."""
+        return LabSettings.from_dict(self.get_lab_setting_overrides())
+
+    def set_lab_settings(self, overrides: Mapping[str, Any], *, who: str, reason: str) -> LabSettings:
+        """Replace the lab's overrides (``{}`` returns to the defaults); recorded in the trail."""
+        who = _person(who)
+        reason = _text(reason, "reason", required=True, min_length=3)
+        if not isinstance(overrides, Mapping):
+            raise InputError(f"must be a mapping of setting names to values; got {overrides!r}", field="settings")
+        overrides = dict(overrides)
+        settings = LabSettings.from_dict(overrides)
+        at = _now()
+        with self._engine.begin() as conn:
+            row = self._settings_row(conn)
+            old = json.loads(row["settings"])
+            changes = diff_documents({"settings": old}, {"settings": overrides})
+            conn.execute(
+                lab_settings_table.update().where(lab_settings_table.c.id == 1)
+                .values(settings=_dumps(overrides), updated_at=at, updated_by=who)
+            )
+            self._audit(conn, session_id=None, who=who, action="settings changed", changes=changes, reason=reason, version=None, at=at)
+        return settings
+
+    def remember_mapping(self, fingerprint: str, mapping: Mapping[str, Any], *, who: str) -> None:
+        """Remember the column mapping for logger files whose header has this fingerprint."""
+        who = _person(who)
+        fingerprint = _text(fingerprint, "fingerprint", required=True)
+        if not isinstance(mapping, Mapping):
+            raise InputError(f"must be a mapping; got {mapping!r}", field="mapping")
+        try:
+            mapping = json.loads(_dumps(dict(mapping)))
+        except (TypeError, ValueError) as exc:
+            raise InputError(f"must hold only JSON values: {exc}", field="mapping") from exc
+        at = _now()
+        with self._engine.begin() as conn:
+            row = self._settings_row(conn)
+            mappings = json.loads(row["mappings"])
+            old = mappings.get(fingerprint)
+            if old == mapping:
+                return
+            mappings[fingerprint] = mapping
+            conn.execute(
+                lab_settings_table.update().where(lab_settings_table.c.id == 1)
+                .values(mappings=_dumps(mappings), updated_at=at, updated_by=who)
+            )
+            changes = [{"field": f"mappings[{fingerprint}]", "from": old, "to": mapping}]
+            self._audit(conn, session_id=None, who=who, action="mapping remembered", changes=changes, reason="", version=None, at=at)
+
+    def recall_mapping(self, fingerprint: str) -> dict[str, Any] | None:
+        """The remembered column mapping for this header fingerprint, or ``None``."""
+        return self.remembered_mappings().get(fingerprint)
+
+    def remembered_mappings(self) -> dict[str, dict[str, Any]]:
+        """Every remembered mapping, keyed by header fingerprint."""
+        with self._engine.connect() as conn:
+            row = conn.execute(sa.select(lab_settings_table.c.mappings).where(lab_settings_table.c.id == 1)).scalar()
+        return json.loads(row or "{}")
