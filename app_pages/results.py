@@ -1,0 +1,156 @@
+"""Results: the step table, speed–MO2 and cost-of-transport curves, Ucrit, SMR, MMR, scope; downloads."""
+
+from __future__ import annotations
+
+import json
+
+import pandas as pd
+import streamlit as st
+
+from app_pages import common
+from swimlab import plots
+
+common.page_header(
+    "Results",
+    "Speeds, MO2 and cost of transport per step; Ucrit, SMR, MMR and aerobic scope with their "
+    "methods and intervals; tables and figures to download.",
+)
+book = common.labbook()
+data = common.require_session()
+common.session_banner()
+session = common.require_valid(data)
+analysis = common.analysis_for(book, session)
+if analysis is None:
+    st.stop()
+
+fish_ids = [f.fish_id for f in session.fish]
+fish_id = st.selectbox("Fish", fish_ids, key="rs_fish") if len(fish_ids) > 1 else fish_ids[0]
+
+welfare = analysis.flags[analysis.flags["welfare"].astype(bool)] if not analysis.flags.empty else analysis.flags
+if len(welfare):
+    st.error(f"{len(welfare)} welfare flag(s) on this session — see the Checks page.", icon=":material/pets:")
+    st.page_link(common.PAGE_FILES["checks"], label="Go to Checks", icon=":material/rule:")
+
+# --- headline values ------------------------------------------------------------------------
+QUANTITY_NAMES = {
+    "ucrit": "Ucrit", "ucrit_bl": "Ucrit", "ucrit_set": "Ucrit (set speed)", "smr": "SMR",
+    "smr_quantile": "SMR (low quantile)", "smr_mlnd": "SMR (MLND)", "mmr": "MMR", "aas": "Absolute aerobic scope",
+    "fas": "Factorial aerobic scope", "uopt": "Uopt", "uopt_bl": "Uopt", "cotmin": "COTmin",
+}
+results = analysis.results
+mine = results[results["fish_id"].astype(str) == str(fish_id)] if not results.empty else results
+if mine.empty:
+    st.info("No derived values yet: they need accepted measure phases at several speeds.")
+else:
+    headline = [q for q in ("ucrit", "smr", "mmr", "aas", "uopt", "cotmin") if q in set(mine["quantity"])]
+    cols = st.columns(max(len(headline), 1))
+    for col, q in zip(cols, headline, strict=False):
+        row = mine[mine["quantity"] == q].iloc[0]
+        value = row["value"]
+        text = "–" if pd.isna(value) else f"{value:.3g}"
+        interval = "" if pd.isna(row["ci_low"]) else f"95 % CI {row['ci_low']:.3g}–{row['ci_high']:.3g}"
+        col.metric(f"{QUANTITY_NAMES.get(q, q)} [{row['unit']}]", text, help=f"{row['method']}. {interval}".strip())
+    table = mine.assign(quantity=mine["quantity"].map(lambda q: QUANTITY_NAMES.get(q, q)))
+    st.dataframe(
+        table.drop(columns=["fish_id"]), hide_index=True, width="stretch",
+        column_config={
+            "quantity": "Quantity", "value": st.column_config.NumberColumn("Value", format="%.4g"),
+            "unit": "Unit", "method": "Method",
+            "ci_low": st.column_config.NumberColumn("95 % CI low", format="%.4g"),
+            "ci_high": st.column_config.NumberColumn("95 % CI high", format="%.4g"), "note": "Note",
+        },
+    )
+
+# --- step table -----------------------------------------------------------------------------
+st.subheader("Steps")
+steps = analysis.steps
+own = steps[steps["fish_id"].astype(str) == str(fish_id)] if not steps.empty else steps
+STEP_COLUMNS = {
+    "step": st.column_config.NumberColumn("Step", format="%d"),
+    "set_speed_cm_s": st.column_config.NumberColumn("Set speed [cm/s]", format="%.1f"),
+    "corrected_speed_cm_s": st.column_config.NumberColumn("Corrected speed [cm/s]", format="%.1f",
+                                                          help="Set speed corrected for solid blocking"),
+    "speed_bl_s": st.column_config.NumberColumn("Speed [BL/s]", format="%.2f"),
+    "reynolds": st.column_config.NumberColumn("Re [-]", format="%.3g"),
+    "flow_regime": st.column_config.TextColumn("Flow regime"),
+    "drag_mn": st.column_config.NumberColumn("Drag [mN]", format="%.2f"),
+    "drag_power_mw": st.column_config.NumberColumn("Drag power [mW]", format="%.3f"),
+    "mo2_mg_kg_h": st.column_config.NumberColumn("MO2 [mg O2/kg/h]", format="%.1f"),
+    "mo2_sd_mg_kg_h": st.column_config.NumberColumn("MO2 SD [mg O2/kg/h]", format="%.1f"),
+    "n_phases": st.column_config.NumberColumn("Phases [-]", format="%d"),
+    "cot_gross_mg_kg_km": st.column_config.NumberColumn("Gross COT [mg O2/kg/km]", format="%.1f"),
+    "cot_net_mg_kg_km": st.column_config.NumberColumn("Net COT [mg O2/kg/km]", format="%.1f"),
+    "cot_gross_j_kg_m": st.column_config.NumberColumn("Gross COT [J/kg/m]", format="%.2f"),
+}
+st.dataframe(own[[c for c in STEP_COLUMNS if c in own]], hide_index=True, width="stretch", column_config=STEP_COLUMNS)
+
+# --- figures --------------------------------------------------------------------------------
+fits = analysis.fits.get(fish_id) if isinstance(analysis.fits, dict) else None
+fig_mo2 = plots.speed_mo2_figure(steps, fits, fish_id, measure=analysis.measure)
+fig_cot = plots.cot_figure(steps, results, fish_id)
+left, right = st.columns(2)
+with left:
+    common.show_figure(fig_mo2, key="rs_fig_mo2", name=f"speed-mo2-{fish_id}")
+with right:
+    common.show_figure(fig_cot, key="rs_fig_cot", name=f"cot-{fish_id}")
+if fits is None:
+    st.caption("No speed–MO2 fit for this fish (see Checks).")
+else:
+    st.caption(f"Chosen by AICc: {getattr(fits, 'best', None) or 'none'}. Bands: 95 % intervals of each fit. "
+               "The camera button of a figure saves it as SVG.")
+
+# --- downloads ------------------------------------------------------------------------------
+st.subheader("Downloads")
+sid = session.session_id
+cols = st.columns(4)
+cols[0].download_button("Step table (CSV)", steps.to_csv(index=False), file_name=f"{sid}-steps.csv", mime="text/csv",
+                        key="rs_dl_steps", icon=":material/table:")
+cols[1].download_button("Results (CSV)", results.to_csv(index=False), file_name=f"{sid}-results.csv", mime="text/csv",
+                        key="rs_dl_results", icon=":material/table:")
+cols[2].download_button("Measure phases (CSV)", analysis.measure.to_csv(index=False), file_name=f"{sid}-phases.csv",
+                        mime="text/csv", key="rs_dl_phases", icon=":material/table:")
+cols[3].download_button("Flags (CSV)", analysis.flags.to_csv(index=False), file_name=f"{sid}-flags.csv",
+                        mime="text/csv", key="rs_dl_flags", icon=":material/table:")
+cols = st.columns(4)
+cols[0].download_button("Analysis (JSON)", lambda: json.dumps(analysis.to_json_dict(), indent=2, default=str),
+                        file_name=f"{sid}-analysis.json", mime="application/json", key="rs_dl_json", icon=":material/data_object:")
+cols[1].download_button("Speed–MO2 figure (HTML)", lambda: fig_mo2.to_html(include_plotlyjs=True, full_html=True),
+                        file_name=f"{sid}-speed-mo2.html", mime="text/html", key="rs_dl_fig_mo2", icon=":material/image:")
+cols[2].download_button("COT figure (HTML)", lambda: fig_cot.to_html(include_plotlyjs=True, full_html=True),
+                        file_name=f"{sid}-cot.html", mime="text/html", key="rs_dl_fig_cot", icon=":material/image:")
+st.caption("SVG: use the camera button at the top right of each figure.")
+
+# --- submit ---------------------------------------------------------------------------------
+st.subheader("Send for review")
+status = st.session_state.get("app_status")
+if status in ("draft", "returned"):
+    if common.is_unsaved():
+        st.warning("Save your edits on the Set-up page before sending the session for review.")
+    note = st.text_input("Note for the reviewer (optional)", key="rs_submit_note")
+    if st.button("Submit for review", key="rs_submit", type="primary", disabled=common.is_unsaved()):
+        who = common.user_name() or session.operator
+        if not who:
+            st.error("Your name: type your name in the sidebar first; it goes in the audit trail.")
+        else:
+            try:
+                book.submit(sid, who=who, comment=note)
+                common.refresh_status(book)
+                st.success("Submitted for review.")
+                st.rerun()
+            except (ValueError, LookupError) as exc:
+                st.error(f"Not submitted: {exc}")
+else:
+    st.caption(f"Status: {status or 'not yet in the lab book'}.")
+
+common.explain(
+    "How these values are computed",
+    "Corrected speed: set speed from the flume's calibration, corrected for solid blocking (Bell & "
+    "Terhune 1970). Ucrit: Brett (1964), from the last completed step and the time swum in the step of "
+    "fatigue. Speed–MO2: exponential and power models fitted to per-phase MO2, chosen by AICc, with 95 % "
+    "intervals. SMR: the fit extrapolated to zero speed, and from resting phases where there are enough "
+    "(Chabot et al. 2016). MMR: the steepest window of the measure phases. Aerobic scope: MMR − SMR "
+    "(absolute) and MMR / SMR (factorial). Cost of transport: MO2 / speed (gross) and (MO2 − SMR) / speed "
+    "(net); Uopt is the speed of the fit's lowest gross COT.",
+    ["swimlab.flume.corrected_speed", "swimlab.performance.ucrit", "swimlab.performance.fit_speed_metabolism",
+     "swimlab.performance.smr_from_fit", "swimlab.performance.cost_of_transport", "swimlab.performance.optimal_speed"],
+)

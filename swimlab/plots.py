@@ -1,0 +1,364 @@
+"""Plotly figure builders: tables and arrays in, a figure out.
+
+No streamlit here, and no science: every number drawn comes from
+:func:`swimlab.analysis.analyse` (or the arrays it holds). Long oxygen traces are drawn
+downsampled (MinMax-LTTB, Steinarsson 2013 with a min-max preselection; ``tsdownsample``) so that a
+72-hour trace stays responsive in the browser; the full data are used for every number.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import plotly.graph_objects as go
+
+DEFAULT_MAX_POINTS = 4000
+"""Points drawn per channel of an oxygen trace."""
+
+PHASE_COLOURS = {
+    "flush": "rgba(66, 133, 244, 0.10)",
+    "wait": "rgba(150, 150, 150, 0.10)",
+    "measure": "rgba(255, 193, 7, 0.16)",
+}
+"""Band colours of the flush / wait / measure phases (our own choice)."""
+
+CHANNEL_COLOURS = ["#1f5fa8", "#c0392b", "#1e8449", "#7d3c98", "#b9770e", "#117a65", "#5d6d7e", "#a93226"]
+"""Line colours of the oxygen channels, in channel order (our own choice)."""
+
+FIT_COLOURS = {"exponential": "#1f5fa8", "power": "#c0392b"}
+
+SVG_CONFIG = {"toImageButtonOptions": {"format": "svg", "scale": 1}, "displaylogo": False}
+"""Plotly config: the camera button saves the figure as SVG in the browser."""
+
+
+def downsample_indices(x: np.ndarray, y: np.ndarray, n_out: int = DEFAULT_MAX_POINTS) -> np.ndarray:
+    """Return the indices of at most ``n_out`` points that keep the trace's visible shape.
+
+    Uses MinMax-LTTB from ``tsdownsample`` (NaN-aware when ``y`` holds gaps). ``x`` must be
+    increasing. Short series are returned whole.
+    """
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    if x.shape != y.shape:
+        raise ValueError(f"x and y must have the same length; got {x.size} and {y.size}")
+    if x.size <= n_out or n_out < 3:
+        return np.arange(x.size)
+    from tsdownsample import MinMaxLTTBDownsampler, NaNMinMaxLTTBDownsampler
+
+    finite_x = np.isfinite(x)
+    if not finite_x.all():
+        keep = np.flatnonzero(finite_x)
+        sub = downsample_indices(x[keep], y[keep], n_out)
+        return keep[sub]
+    sampler = NaNMinMaxLTTBDownsampler() if np.isnan(y).any() else MinMaxLTTBDownsampler()
+    idx = sampler.downsample(x, y, n_out=int(n_out))
+    return np.asarray(idx, dtype=np.int64)
+
+
+def _phase_band_traces(phases: pd.DataFrame, x_scale: float) -> list[go.Scatter]:
+    """One filled trace per phase kind (flush / wait / measure), drawn on a hidden 0-1 axis."""
+    traces = []
+    if phases is None or phases.empty:
+        return traces
+    for kind, colour in PHASE_COLOURS.items():
+        part = phases[phases["phase"] == kind]
+        if part.empty:
+            continue
+        xs: list[float | None] = []
+        ys: list[float | None] = []
+        text: list[str | None] = []
+        for row in part.itertuples(index=False):
+            s, e = float(row.start_s) / x_scale, float(row.end_s) / x_scale
+            label = f"{kind}, cycle {int(row.cycle)}"
+            xs += [s, s, e, e, s, None]
+            ys += [0, 1, 1, 0, 0, None]
+            text += [label] * 5 + [None]
+        traces.append(go.Scatter(
+            x=xs, y=ys, yaxis="y2", mode="lines", fill="toself", fillcolor=colour,
+            line={"width": 0}, name=kind, legendgroup="phases", hoverinfo="text", text=text,
+            hoveron="fills", showlegend=True,
+        ))
+    return traces
+
+
+def _fit_line_traces(measure: pd.DataFrame, x_scale: float, colours: Mapping[str, str],
+                     intercept_at_phase_start: bool) -> list[go.Scatter]:
+    """Fitted straight lines of the measure phases, used and not used, with R² on hover."""
+    if measure is None or measure.empty or "slope_mg_l_s" not in measure:
+        return []
+    ends_given = {"o2_start_mg_l", "o2_end_mg_l"} <= set(measure.columns)
+    if not ends_given and "intercept_mg_l" not in measure:
+        return []
+    traces = []
+    used_col = measure["used"] if "used" in measure else pd.Series(True, index=measure.index)
+    for used in (True, False):
+        part = measure[used_col.astype(bool) == used]
+        anchor = part["o2_start_mg_l"] if ends_given else part["intercept_mg_l"]
+        part = part[np.isfinite(part["slope_mg_l_s"].astype(float)) & np.isfinite(anchor.astype(float))]
+        for channel, rows in part.groupby("channel", sort=True):
+            xs: list[float | None] = []
+            ys: list[float | None] = []
+            custom: list[Any] = []
+            for row in rows.itertuples(index=False):
+                s, e = float(row.start_s), float(row.end_s)
+                pts = [s, 0.5 * (s + e), e]
+                xs += [p / x_scale for p in pts] + [None]
+                if ends_given:  # the fitted values at the phase's first and last reading
+                    y0, y1 = float(row.o2_start_mg_l), float(row.o2_end_mg_l)
+                    ys += [y0, 0.5 * (y0 + y1), y1, None]
+                else:
+                    t0 = s if intercept_at_phase_start else 0.0
+                    ys += [float(row.intercept_mg_l) + float(row.slope_mg_l_s) * (p - t0) for p in pts] + [None]
+                mo2 = getattr(row, "mo2_mg_kg_h", np.nan)
+                why = _why_not_used(row) if not used else ""
+                info = (str(channel), int(row.cycle), float(row.r2), float(mo2) if mo2 is not None else np.nan, why)
+                custom += [info] * 3 + [(None,) * 5]
+            name = f"fit {channel}" + ("" if used else " (not used)")
+            traces.append(go.Scatter(
+                x=xs, y=ys, mode="lines+markers", name=name,
+                line={"color": colours.get(str(channel), "#333"), "width": 3 if used else 2,
+                      "dash": "solid" if used else "dot"},
+                marker={"size": 4, "opacity": 0.6},
+                customdata=custom, legendgroup=f"fit-{used}",
+                hovertemplate=("chamber %{customdata[0]}, cycle %{customdata[1]}<br>R² %{customdata[2]:.4f}"
+                               "<br>MO2 %{customdata[3]:.1f} mg O2/kg/h"
+                               + ("" if used else "<br>not used: %{customdata[4]}") + "<extra></extra>"),
+            ))
+    return traces
+
+
+def _why_not_used(row: Any) -> str:
+    parts = []
+    if bool(getattr(row, "excluded", False)):
+        parts.append(f"excluded ({getattr(row, 'exclusion_reason', '') or 'no reason'})")
+    rejected = getattr(row, "rejected_by", "")
+    if isinstance(rejected, list | tuple):
+        rejected = ", ".join(map(str, rejected))
+    if rejected and str(rejected) != "nan":
+        parts.append(f"rejected by {rejected}")
+    return "; ".join(parts) or "not used"
+
+
+def trace_figure(
+    time_s: np.ndarray,
+    series: Mapping[str, np.ndarray],
+    *,
+    unit: str = "mg/L",
+    phases: pd.DataFrame | None = None,
+    measure: pd.DataFrame | None = None,
+    floor: float | None = None,
+    max_points: int = DEFAULT_MAX_POINTS,
+    intercept_at_phase_start: bool = False,
+    highlight: tuple[str, int] | None = None,
+    title: str | None = None,
+) -> go.Figure:
+    """Draw oxygen against time, one line per channel, with phases shaded and fitted lines.
+
+    Parameters
+    ----------
+    time_s
+        Time on the trace clock. [s]
+    series
+        Oxygen per channel, on ``time_s``. [``unit``]
+    unit
+        Unit of ``series`` for the axis title (the fitted lines are in mg/L: pass mg/L series
+        when ``measure`` is given).
+    phases
+        Table with ``cycle, phase, start_s, end_s`` (flush / wait / measure bands).
+    measure
+        Table with ``channel, cycle, start_s, end_s, slope_mg_l_s, r2, used`` and either the
+        fitted values at the phase's ends ``o2_start_mg_l, o2_end_mg_l`` or ``intercept_mg_l``.
+    floor
+        Oxygen floor drawn as a dashed line. [``unit``]
+    max_points
+        Points drawn per channel (MinMax-LTTB downsampling); the figure says when it is downsampled.
+    intercept_at_phase_start
+        Whether ``intercept_mg_l`` is the fitted value at the phase's start (True) or at time 0
+        of the trace clock (False).
+    highlight
+        (channel, cycle) of a phase to outline.
+    """
+    t = np.asarray(time_s, dtype=float)
+    span_h = (np.nanmax(t) - np.nanmin(t)) / 3600.0 if t.size else 0.0
+    x_scale, x_title = (3600.0, "Time [h]") if span_h > 3 else (60.0, "Time [min]")
+    colours = {str(ch): CHANNEL_COLOURS[i % len(CHANNEL_COLOURS)] for i, ch in enumerate(series)}
+    fig = go.Figure()
+    for band in _phase_band_traces(phases, x_scale):
+        fig.add_trace(band)
+    downsampled = False
+    for channel, values in series.items():
+        y = np.asarray(values, dtype=float)
+        if y.shape != t.shape:
+            raise ValueError(f"channel {channel!r}: {y.size} oxygen values for {t.size} times")
+        idx = downsample_indices(t, y, max_points)
+        downsampled |= idx.size < t.size
+        fig.add_trace(go.Scatter(
+            x=t[idx] / x_scale, y=y[idx], mode="lines", name=f"chamber {channel}",
+            line={"color": colours[str(channel)], "width": 1.2},
+            hovertemplate=f"chamber {channel}<br>%{{x:.2f}}<br>%{{y:.3f}} {unit}<extra></extra>",
+        ))
+    for line in _fit_line_traces(measure, x_scale, colours, intercept_at_phase_start):
+        fig.add_trace(line)
+    if floor is not None and np.isfinite(floor):
+        fig.add_hline(y=floor, line={"color": "#b03a2e", "dash": "dash", "width": 1},
+                      annotation_text="oxygen floor", annotation_position="bottom right")
+    if highlight is not None and measure is not None and not measure.empty:
+        hit = measure[(measure["channel"].astype(str) == str(highlight[0])) & (measure["cycle"] == highlight[1])]
+        for row in hit.itertuples(index=False):
+            fig.add_vrect(x0=row.start_s / x_scale, x1=row.end_s / x_scale, line={"color": "#111", "width": 2},
+                          fillcolor="rgba(0,0,0,0)")
+    note = f" (drawn: ≤{max_points} points per chamber; numbers use every reading)" if downsampled else ""
+    fig.update_layout(
+        title={"text": (title or "Oxygen") + note, "font": {"size": 14}},
+        xaxis={"title": x_title},
+        yaxis={"title": f"Oxygen [{unit}]"},
+        yaxis2={"range": [0, 1], "overlaying": "y", "visible": False, "fixedrange": True},
+        hovermode="closest", template="plotly_white", height=460,
+        legend={"orientation": "h", "y": -0.18}, margin={"l": 60, "r": 20, "t": 50, "b": 40},
+        dragmode="zoom",
+    )
+    return fig
+
+
+def _fish_steps(steps: pd.DataFrame, fish_id: str) -> pd.DataFrame:
+    part = steps[steps["fish_id"].astype(str) == str(fish_id)] if "fish_id" in steps else steps
+    return part.sort_values("corrected_speed_cm_s")
+
+
+def speed_mo2_figure(steps: pd.DataFrame, fits: Any | None, fish_id: str, *,
+                     measure: pd.DataFrame | None = None, n_curve: int = 120) -> go.Figure:
+    """Draw MO2 against corrected speed for one fish with both model fits and their bands.
+
+    Parameters
+    ----------
+    steps
+        Step table with ``fish_id, step, corrected_speed_cm_s, mo2_mg_kg_h, mo2_sd_mg_kg_h``.
+    fits
+        The fish's speed–metabolism fits: ``.exponential`` and ``.power`` with ``.predict(speed_m_s)``
+        and ``.band(speed_m_s) -> (lo, hi)``, and ``.best`` naming the chosen model. None when no
+        fit was possible.
+    measure
+        Optional phase table (``fish_id, step, mo2_mg_kg_h, used``) to show single phases.
+    """
+    part = _fish_steps(steps, fish_id)
+    fig = go.Figure()
+    if measure is not None and not measure.empty and {"step", "mo2_mg_kg_h"} <= set(measure.columns):
+        speed_of_step = dict(zip(part["step"], part["corrected_speed_cm_s"], strict=False))
+        m = measure[(measure["fish_id"].astype(str) == str(fish_id))] if "fish_id" in measure else measure
+        if "used" in m:
+            m = m[m["used"].astype(bool)]
+        x = m["step"].map(speed_of_step)
+        fig.add_trace(go.Scatter(x=x, y=m["mo2_mg_kg_h"], mode="markers", name="single phases",
+                                 marker={"size": 5, "color": "rgba(90,90,90,0.45)"},
+                                 hovertemplate="step %{text}<br>%{y:.1f} mg O2/kg/h<extra></extra>",
+                                 text=m["step"]))
+    err = part["mo2_sd_mg_kg_h"] if "mo2_sd_mg_kg_h" in part else None
+    fig.add_trace(go.Scatter(
+        x=part["corrected_speed_cm_s"], y=part["mo2_mg_kg_h"], mode="markers", name="step mean ± SD",
+        marker={"size": 9, "color": "#111"},
+        error_y={"type": "data", "array": err, "visible": True, "color": "#555"} if err is not None else None,
+        hovertemplate="%{x:.1f} cm/s<br>MO2 %{y:.1f} mg O2/kg/h<extra></extra>",
+    ))
+    if fits is not None and len(part):
+        top = float(np.nanmax(part["corrected_speed_cm_s"])) * 1.1
+        grid_cm_s = np.linspace(0.0, top, n_curve)
+        grid_m_s = grid_cm_s / 100.0
+        best = getattr(fits, "best", None)
+        best_name = best if isinstance(best, str) else getattr(best, "name", getattr(best, "model", None))
+        for name in ("exponential", "power"):
+            model = getattr(fits, name, None)
+            if model is None:
+                continue
+            try:
+                y = np.asarray(model.predict(grid_m_s), dtype=float)
+                lo, hi = (np.asarray(v, dtype=float) for v in model.band(grid_m_s))
+            except (ValueError, TypeError, ArithmeticError):
+                continue
+            colour = FIT_COLOURS[name]
+            chosen = " (chosen)" if best_name == name else ""
+            aicc = getattr(model, "aicc", None)
+            label = f"{name} fit{chosen}" + (f", AICc {aicc:.1f}" if isinstance(aicc, float) and np.isfinite(aicc) else "")
+            rgba = _rgba(colour, 0.14)
+            fig.add_trace(go.Scatter(x=np.concatenate([grid_cm_s, grid_cm_s[::-1]]),
+                                     y=np.concatenate([hi, lo[::-1]]), fill="toself", fillcolor=rgba,
+                                     line={"width": 0}, hoverinfo="skip", name=f"{name} 95 % band",
+                                     legendgroup=name, showlegend=True))
+            fig.add_trace(go.Scatter(x=grid_cm_s, y=y, mode="lines", name=label, legendgroup=name,
+                                     line={"color": colour, "width": 3 if chosen else 2,
+                                           "dash": "solid" if name == "exponential" else "dash"},
+                                     hovertemplate="%{x:.1f} cm/s<br>%{y:.1f} mg O2/kg/h<extra>" + name + "</extra>"))
+    fig.update_layout(
+        title={"text": f"MO2 against corrected speed – fish {fish_id}", "font": {"size": 14}},
+        xaxis={"title": "Corrected speed [cm/s]", "rangemode": "tozero"},
+        yaxis={"title": "MO2 [mg O2/kg/h]", "rangemode": "tozero"},
+        template="plotly_white", height=420, legend={"orientation": "h", "y": -0.2},
+        margin={"l": 60, "r": 20, "t": 50, "b": 40},
+    )
+    return fig
+
+
+def cot_figure(steps: pd.DataFrame, results: pd.DataFrame | None, fish_id: str) -> go.Figure:
+    """Draw gross and net cost of transport against corrected speed, with Uopt marked.
+
+    ``results`` rows ``quantity == "uopt"`` (value in the unit its ``unit`` column names, cm/s
+    or m/s) and ``"cotmin"`` are shown when present.
+    """
+    part = _fish_steps(steps, fish_id)
+    fig = go.Figure()
+    for column, name, dash in (("cot_gross_mg_kg_km", "gross COT", "solid"), ("cot_net_mg_kg_km", "net COT", "dot")):
+        if column in part and part[column].notna().any():
+            fig.add_trace(go.Scatter(x=part["corrected_speed_cm_s"], y=part[column], mode="lines+markers",
+                                     name=name, line={"dash": dash, "width": 2},
+                                     hovertemplate="%{x:.1f} cm/s<br>%{y:.1f} mg O2/kg/km<extra>" + name + "</extra>"))
+    uopt = _result_value(results, fish_id, "uopt")
+    if uopt is not None:
+        value, unit = uopt
+        cm_s = value * 100.0 if unit.strip() in ("m/s", "m s-1") else value
+        fig.add_vline(x=cm_s, line={"color": "#1e8449", "dash": "dash", "width": 2},
+                      annotation_text=f"Uopt {cm_s:.1f} cm/s", annotation_position="top")
+    fig.update_layout(
+        title={"text": f"Cost of transport – fish {fish_id}", "font": {"size": 14}},
+        xaxis={"title": "Corrected speed [cm/s]", "rangemode": "tozero"},
+        yaxis={"title": "Cost of transport [mg O2/kg/km]", "rangemode": "tozero"},
+        template="plotly_white", height=420, legend={"orientation": "h", "y": -0.2},
+        margin={"l": 60, "r": 20, "t": 50, "b": 40},
+    )
+    return fig
+
+
+def _result_value(results: pd.DataFrame | None, fish_id: str, quantity: str) -> tuple[float, str] | None:
+    if results is None or results.empty:
+        return None
+    hit = results[(results["fish_id"].astype(str) == str(fish_id)) & (results["quantity"] == quantity)]
+    if hit.empty:
+        return None
+    value = float(hit["value"].iloc[0])
+    if not np.isfinite(value):
+        return None
+    return value, str(hit["unit"].iloc[0]) if "unit" in hit else ""
+
+
+def _rgba(hex_colour: str, alpha: float) -> str:
+    h = hex_colour.lstrip("#")
+    r, g, b = (int(h[i:i + 2], 16) for i in (0, 2, 4))
+    return f"rgba({r},{g},{b},{alpha})"
+
+
+def calibration_figure(points: Sequence[Mapping[str, float]]) -> go.Figure:
+    """Draw the flume's speed calibration points (motor setting against measured speed)."""
+    frame = pd.DataFrame(list(points), columns=["motor_setting", "speed_cm_s"]).dropna()
+    fig = go.Figure(go.Scatter(x=frame["motor_setting"], y=frame["speed_cm_s"], mode="markers+lines",
+                               marker={"size": 8}, name="calibration"))
+    fig.update_layout(title={"text": "Speed calibration", "font": {"size": 14}},
+                      xaxis={"title": "Motor setting [controller units]"},
+                      yaxis={"title": "Measured speed [cm/s]", "rangemode": "tozero"},
+                      template="plotly_white", height=300, margin={"l": 60, "r": 20, "t": 40, "b": 40})
+    return fig
+
+
+def figure_payload_bytes(fig: go.Figure) -> int:
+    """Return the size of the figure's JSON as sent to the browser. [bytes]"""
+    return len(fig.to_json().encode("utf-8"))
