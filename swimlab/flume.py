@@ -9,6 +9,10 @@ about 10 % by common practice); :func:`blocking_flags` says when a fish is beyon
 The speed calibration maps a motor setting (whatever the lab's controller shows: Hz, %, rpm,
 volts) to the water speed measured in the empty working section (e.g. with a flow meter), as a
 least-squares polynomial whose residuals are kept.
+
+Live animals: these numbers help plan and report a trial; they do not replace the protocol
+approved by the institution's animal-care committee, local law, or licensed practice. A fish
+too large for the section (or beyond the blocking limit) should not be swum in it.
 """
 
 from __future__ import annotations
