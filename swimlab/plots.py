@@ -37,8 +37,8 @@ SVG_CONFIG = {"toImageButtonOptions": {"format": "svg", "scale": 1}, "displaylog
 def downsample_indices(x: np.ndarray, y: np.ndarray, n_out: int = DEFAULT_MAX_POINTS) -> np.ndarray:
     """Return the indices of at most ``n_out`` points that keep the trace's visible shape.
 
-    Uses MinMax-LTTB from ``tsdownsample`` (NaN-aware when ``y`` holds gaps). ``x`` must be
-    increasing. Short series are returned whole.
+    Uses MinMax-LTTB from ``tsdownsample`` (NaN-aware when ``y`` holds gaps) and always keeps
+    the lowest and highest reading. ``x`` must be increasing. Short series are returned whole.
     """
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
@@ -53,9 +53,18 @@ def downsample_indices(x: np.ndarray, y: np.ndarray, n_out: int = DEFAULT_MAX_PO
         keep = np.flatnonzero(finite_x)
         sub = downsample_indices(x[keep], y[keep], n_out)
         return keep[sub]
-    sampler = NaNMinMaxLTTBDownsampler() if np.isnan(y).any() else MinMaxLTTBDownsampler()
-    idx = sampler.downsample(x, y, n_out=int(n_out))
-    return np.asarray(idx, dtype=np.int64)
+    has_gaps = bool(np.isnan(y).any())
+    sampler = NaNMinMaxLTTBDownsampler() if has_gaps else MinMaxLTTBDownsampler()
+    idx = np.asarray(sampler.downsample(x, y, n_out=int(n_out) - 2), dtype=np.int64)
+    # LTTB picks by triangle area, which may drop the lowest reading (the one nearest the oxygen
+    # floor): always draw the lowest and highest readings too.
+    if has_gaps and np.isfinite(y).any():
+        extremes = [int(np.nanargmin(y)), int(np.nanargmax(y))]
+    elif not has_gaps:
+        extremes = [int(np.argmin(y)), int(np.argmax(y))]
+    else:
+        extremes = []
+    return np.unique(np.concatenate([idx, np.asarray(extremes, dtype=np.int64)]))
 
 
 def _phase_band_traces(phases: pd.DataFrame, x_scale: float) -> list[go.Scatter]:
