@@ -1,0 +1,91 @@
+"""Benchmark: reading a large oxygen logger export against a bare pandas parse of the same bytes.
+
+Builds in memory a 72-hour, 8-channel, 1 Hz export (259,200 readings; ISO date-times, 8 oxygen
+columns in % air saturation, 8 temperature columns, a flush-pump column), then prints the median
+of five runs of:
+
+- ``pandas.read_csv`` with the C engine,
+- ``pandas.read_csv`` with the pyarrow engine,
+- ``swimlab.io.read_logger`` with the mapping given (as when the lab book remembers it),
+- ``swimlab.io.read_logger`` with the mapping guessed,
+
+and the ratio of each swimlab figure to the faster bare parse.
+
+Run: ``/work/venv/bin/python benchmarks/bench_import.py [--hours 72] [--channels 8] [--runs 5]``
+"""
+
+from __future__ import annotations
+
+import argparse
+import io
+import statistics
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+
+from swimlab.io import guess_mapping, read_logger  # noqa: E402
+
+
+def make_export(hours: float = 72.0, channels: int = 8, seed: int = 20260302) -> bytes:
+    """Return the bytes of a simulated 1 Hz logger export (its own generator, seeded)."""
+    rng = np.random.default_rng(seed)
+    n = int(hours * 3600)
+    start = np.datetime64("2026-03-02T08:00:00")
+    stamps = np.datetime_as_string(start + np.arange(n).astype("timedelta64[s]"))
+    stamps = np.char.replace(stamps, "T", " ")
+    cycle = np.arange(n) % 900  # 15-min cycles: 5 min flush, 10 min closed
+    flushing = cycle < 300
+    columns: dict[str, np.ndarray] = {"Time": stamps}
+    for c in range(channels):
+        decline = np.where(flushing, 0.0, (cycle - 300) * rng.uniform(0.01, 0.03))
+        columns[f"O2 CH{c + 1} [% air sat.]"] = np.round(97 - decline + rng.normal(0, 0.2, n), 2)
+    for c in range(channels):
+        columns[f"Temp CH{c + 1} [°C]"] = np.round(15 + rng.normal(0, 0.02, n), 2)
+    columns["Flush pump"] = flushing.astype(int)
+    return pd.DataFrame(columns).to_csv(index=False).encode("utf-8")
+
+
+def median_time(func, runs: int) -> float:
+    times = []
+    for _ in range(runs):
+        start = time.perf_counter()
+        func()
+        times.append(time.perf_counter() - start)
+    return statistics.median(times)
+
+
+def main(argv: list[str] | None = None) -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--hours", type=float, default=72.0)
+    parser.add_argument("--channels", type=int, default=8)
+    parser.add_argument("--runs", type=int, default=5)
+    args = parser.parse_args(argv)
+
+    data = make_export(args.hours, args.channels)
+    name = "bench_export.csv"
+    mapping = guess_mapping(data, name=name)
+    trace = read_logger(data, name=name, mapping=mapping)
+    n_rows = trace.n_rows_read
+    assert trace.time_s.size == n_rows and trace.glitches.empty, "benchmark file should be clean"
+
+    c_engine = median_time(lambda: pd.read_csv(io.BytesIO(data), engine="c"), args.runs)
+    arrow_engine = median_time(lambda: pd.read_csv(io.BytesIO(data), engine="pyarrow"), args.runs)
+    given = median_time(lambda: read_logger(data, name=name, mapping=mapping), args.runs)
+    guessed = median_time(lambda: read_logger(data, name=name), args.runs)
+    bare = min(c_engine, arrow_engine)
+
+    print(f"file: {n_rows} rows, {args.channels} oxygen + {args.channels} temperature + pump "
+          f"columns, {len(data) / 1e6:.1f} MB; median of {args.runs} runs")
+    print(f"pandas.read_csv, C engine        {c_engine:8.3f} s")
+    print(f"pandas.read_csv, pyarrow engine  {arrow_engine:8.3f} s")
+    print(f"swimlab read_logger (mapping)    {given:8.3f} s   ratio {given / bare:5.2f}")
+    print(f"swimlab read_logger (guessed)    {guessed:8.3f} s   ratio {guessed / bare:5.2f}")
+
+
+if __name__ == "__main__":
+    main()
