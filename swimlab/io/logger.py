@@ -142,6 +142,8 @@ _TOD = re.compile(r"^(\d{1,2}):(\d{2})(?::(\d{2})([.,]\d+)?)?(?:\s*([AaPp][Mm]))
 
 _PUMP_TRUE = ("1", "1.0", "1,0", "on", "true", "yes", "y", "t")
 _PUMP_FALSE = ("0", "0.0", "0,0", "off", "false", "no", "n", "f")
+_ARROW_TRUE = sorted({v for s in _PUMP_TRUE for v in (s, s.upper(), s.capitalize())})
+_ARROW_FALSE = sorted({v for s in _PUMP_FALSE for v in (s, s.upper(), s.capitalize())})
 
 
 # --- checksum and fingerprint -----------------------------------------------------------------
@@ -388,7 +390,7 @@ def _check_bytes(data: Any, name: str) -> bytes:
 
 def _decode_head(data: bytes, name: str, encoding: str | None) -> tuple[str, str, bool, bool]:
     """Decode the first part of the file; return (text, encoding, bom, truncated)."""
-    if not data.strip():
+    if not data[:4096].strip() and not data.strip():
         raise InputError("the file is empty; expected a delimited text export with a line of "
                          "column names and one line per reading", file=name)
     if data.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
@@ -985,18 +987,24 @@ _CONVERSION_ERROR = re.compile(r"In CSV column #(\d+)")
 
 
 def _read_table(data: bytes, name: str, mapping: ColumnMapping, columns: list[str],
-                offset: int, used: list[str], types: dict[str, pa.DataType]) -> pa.Table:
-    """Parse the readings once; columns whose text does not convert are re-read as text."""
+                offset: int, used: list[str], types: dict[str, pa.DataType],
+                allow_blank: bool) -> pa.Table:
+    """Parse the readings once; columns whose text does not convert are re-read as text.
+
+    With ``allow_blank`` False a blank line is a parse error (so that the fast path need not
+    count lines to map readings to line numbers).
+    """
     read_options = pacsv.ReadOptions(column_names=columns,
                                      encoding=_arrow_encoding(mapping.encoding, data, offset))
-    parse_options = pacsv.ParseOptions(delimiter=mapping.delimiter)
+    parse_options = pacsv.ParseOptions(delimiter=mapping.delimiter,
+                                       ignore_empty_lines=allow_blank)
     types = dict(types)
     retries = 0
     while True:
         convert = pacsv.ConvertOptions(
             include_columns=used, column_types=types, null_values=[""],
             strings_can_be_null=True, decimal_point=mapping.decimal,
-            timestamp_parsers=[pacsv.ISO8601],
+            timestamp_parsers=[pacsv.ISO8601], true_values=_ARROW_TRUE, false_values=_ARROW_FALSE,
         )
         try:
             return pacsv.read_csv(pa.BufferReader(pa.py_buffer(data).slice(offset)),
@@ -1038,10 +1046,10 @@ def _bad_width_lines(data: bytes, mapping: ColumnMapping, offset: int,
     return out
 
 
-def _row_lines(data: bytes, offset: int, n_rows: int) -> np.ndarray:
-    """1-based file line of each parsed reading (the parser skips blank lines)."""
+def _row_lines(data: bytes, offset: int, n_rows: int, blank_lines: bool) -> np.ndarray:
+    """1-based file line of each parsed reading (blank lines, when any, are not readings)."""
     first = data.count(b"\n", 0, offset) + 1
-    if data.find(b"\n\n", offset - 1) < 0 and data.find(b"\n\r\n", offset - 1) < 0:
+    if not blank_lines:
         return first + np.arange(n_rows, dtype=np.int64)
     raw = np.frombuffer(data, dtype=np.uint8, offset=offset)
     ends = np.flatnonzero(raw == 10)
@@ -1056,32 +1064,72 @@ def _row_lines(data: bytes, offset: int, n_rows: int) -> np.ndarray:
     return first + nonblank[:n_rows].astype(np.int64)
 
 
-def _numeric_column(arr: pa.ChunkedArray, decimal: str) -> tuple[np.ndarray, np.ndarray, np.ndarray, Any]:
-    """Return (values, empty, text, text_of) of a column read as float or as string."""
-    if pa.types.is_floating(arr.type) or pa.types.is_integer(arr.type) or pa.types.is_null(arr.type):
-        values = arr.to_numpy().astype(float, copy=False) if not pa.types.is_null(arr.type) \
-            else np.full(len(arr), np.nan)
-        empty = pc.is_null(arr).to_numpy(zero_copy_only=False) if arr.null_count \
-            else np.zeros(len(arr), dtype=bool)
-        text = ~np.isfinite(values) & ~empty
+@dataclass
+class _Cells:
+    """A numeric column's values with where it was empty or held text.
+
+    ``empty`` None means no cell was empty; ``text`` None means a text cell is any non-finite
+    value that is not empty (the Arrow reader turns the words NaN and inf into floats).
+    """
+
+    values: np.ndarray
+    empty: np.ndarray | None
+    text: np.ndarray | None
+    text_of: Any
+
+    def empty_at(self, idx: np.ndarray) -> np.ndarray:
+        if self.empty is None:
+            return np.zeros(len(idx), dtype=bool)
+        return self.empty[idx]
+
+    def text_at(self, idx: np.ndarray) -> np.ndarray:
+        if self.text is not None:
+            return self.text[idx]
+        return ~np.isfinite(self.values[idx]) & ~self.empty_at(idx)
+
+    def full_empty(self) -> np.ndarray:
+        return self.empty if self.empty is not None else np.zeros(self.values.size, dtype=bool)
+
+    def full_text(self) -> np.ndarray:
+        return self.text_at(np.arange(self.values.size))
+
+
+def _to_numpy(arr: pa.ChunkedArray) -> np.ndarray:
+    """A writable numpy copy of a column (nulls of a float column become NaN)."""
+    if arr.num_chunks == 1:
+        return np.array(arr.chunk(0).to_numpy(zero_copy_only=False))
+    if arr.num_chunks == 0:
+        return np.zeros(0, dtype=arr.type.to_pandas_dtype())
+    return np.concatenate([chunk.to_numpy(zero_copy_only=False) for chunk in arr.chunks])
+
+
+def _numeric_column(arr: pa.ChunkedArray, decimal: str) -> _Cells:
+    """Classify the cells of a column read as float (fast path) or as text (slow path)."""
+    if pa.types.is_floating(arr.type) or pa.types.is_integer(arr.type):
+        values = _to_numpy(arr).astype(float, copy=False)
+        empty = pc.is_null(arr).to_numpy(zero_copy_only=False) if arr.null_count else None
 
         def text_of(idx: np.ndarray) -> list[str]:
             return [repr(float(v)).replace("nan", "NaN") for v in values[idx]]
 
-        return values, empty, text, text_of
+        return _Cells(values, empty, None, text_of)
+    if pa.types.is_null(arr.type):
+        n = len(arr)
+        return _Cells(np.full(n, np.nan), np.ones(n, dtype=bool), np.zeros(n, dtype=bool),
+                      lambda idx: [""] * len(idx))
     strings = pc.utf8_trim_whitespace(arr)
     if decimal == ",":
         strings = pc.replace_substring(strings, ",", ".")
     ok = pc.match_substring_regex(strings, _NUMBER_POINT)
     values = pc.cast(pc.if_else(ok, strings, pa.scalar(None, pa.string())), pa.float64())
-    values = values.to_numpy().astype(float, copy=False)
+    values = np.array(values.to_numpy(), dtype=float)
     empty = pc.fill_null(pc.equal(pc.utf8_length(strings), 0), True).to_numpy(zero_copy_only=False)
     text = ~pc.fill_null(ok, False).to_numpy(zero_copy_only=False) & ~empty
 
     def text_of_str(idx: np.ndarray) -> list[str]:
         return [str(v) for v in arr.take(pa.array(idx)).to_pylist()]
 
-    return values, empty, text, text_of_str
+    return _Cells(values, empty, text, text_of_str)
 
 
 def _time_seconds(arr: pa.ChunkedArray, mapping: ColumnMapping) -> tuple[Any, ...]:
@@ -1092,13 +1140,14 @@ def _time_seconds(arr: pa.ChunkedArray, mapping: ColumnMapping) -> tuple[Any, ..
     """
     fmt = mapping.time_format
     if fmt in _ELAPSED_FACTOR_S:
-        values, empty, text, text_of = _numeric_column(arr, mapping.decimal)
-        seconds = values * _ELAPSED_FACTOR_S[fmt]
+        cells = _numeric_column(arr, mapping.decimal)
+        empty, text = cells.full_empty(), cells.full_text()
+        seconds = cells.values * _ELAPSED_FACTOR_S[fmt]
         seconds[empty | text] = np.nan
-        return (seconds, ("elapsed", None), empty, text, text_of,
+        return (seconds, ("elapsed", None), empty, text, cells.text_of,
                 "a number of " + {"s": "seconds", "min": "minutes", "h": "hours"}[fmt[8:]])
     if pa.types.is_timestamp(arr.type):
-        ns = arr.to_numpy().astype("datetime64[ns]").view(np.int64)
+        ns = _to_numpy(arr).astype("datetime64[ns]", copy=False).view(np.int64)
         bad = ns == np.iinfo(np.int64).min
         return (_ns_to_seconds(ns, bad), ("clock", ns, bad, None), bad, np.zeros_like(bad),
                 None, "an ISO 8601 date-time")
@@ -1198,33 +1247,44 @@ def _time_glitches(empty: np.ndarray, text: np.ndarray, text_of: Any, lines: np.
                      "row dropped (time not readable)")
 
 
-def _pump_states(arr: pa.ChunkedArray, lines: np.ndarray, keep: np.ndarray, column: str,
+def _empty_mask(arr: pa.ChunkedArray) -> np.ndarray:
+    """True where a cell is empty (null, or only spaces for text)."""
+    if pa.types.is_string(arr.type) or pa.types.is_large_string(arr.type):
+        lengths = pc.utf8_length(pc.utf8_trim_whitespace(arr))
+        return pc.fill_null(pc.equal(lengths, 0), True).to_numpy(zero_copy_only=False)
+    if arr.null_count == 0:
+        return np.zeros(len(arr), dtype=bool)
+    return pc.is_null(arr).to_numpy(zero_copy_only=False)
+
+
+def _pump_states(arr: pa.ChunkedArray, kept: np.ndarray, row_lines: np.ndarray, column: str,
                  name: str, glitches: _Glitches) -> np.ndarray:
-    strings = pc.utf8_lower(pc.utf8_trim_whitespace(pc.cast(arr, pa.string())))
-    on = pc.fill_null(pc.is_in(strings, value_set=pa.array(_PUMP_TRUE)), False)
-    off = pc.fill_null(pc.is_in(strings, value_set=pa.array(_PUMP_FALSE)), False)
-    on = on.to_numpy(zero_copy_only=False)[keep]
-    off = off.to_numpy(zero_copy_only=False)[keep]
-    known = on | off
+    """Pump state of each kept reading; unknown states take the previous known state."""
+    if pa.types.is_boolean(arr.type):
+        on = pc.fill_null(arr, False).to_numpy(zero_copy_only=False)[kept]
+        known = ~_empty_mask(arr)[kept]
+    else:
+        strings = pc.utf8_lower(pc.utf8_trim_whitespace(arr))
+        on = pc.fill_null(pc.is_in(strings, value_set=pa.array(_PUMP_TRUE)), False)
+        off = pc.fill_null(pc.is_in(strings, value_set=pa.array(_PUMP_FALSE)), False)
+        on = on.to_numpy(zero_copy_only=False)[kept]
+        known = on | off.to_numpy(zero_copy_only=False)[kept]
     if not known.any():
         raise InputError("the pump column holds no on/off states; expected on/off, 1/0, "
                          "true/false or yes/no", file=name, column=column)
     unknown = np.flatnonzero(~known)
     if unknown.size:
-        raw = pc.cast(arr, pa.string()).to_numpy(zero_copy_only=False)[keep][unknown]
-        kinds = np.where(pd.isna(raw) | (pd.Series(raw, dtype=object).fillna("").str.strip() == ""),
-                         "missing", "text_value")
-        for kind in ("missing", "text_value"):
-            sel = kinds == kind
-            glitches.add(lines[keep][unknown[sel]], column, kind,
-                         ["" if v is None else str(v) for v in raw[sel]],
-                         "previous pump state used")
-    # Forward-fill unknown states from the last known one (leading unknowns: the first known).
-    pos = np.where(known, np.arange(known.size), -1)
-    pos = np.maximum.accumulate(pos)
-    first_known = np.flatnonzero(known)[0]
-    pos[pos < 0] = first_known
-    return on[pos]
+        empty = _empty_mask(arr)[kept][unknown]
+        glitches.add(row_lines[unknown[empty]], column, "missing", "", "previous pump state used")
+        if (~empty).any():
+            raw = arr.take(pa.array(kept[unknown[~empty]])).to_pylist()
+            glitches.add(row_lines[unknown[~empty]], column, "text_value",
+                         [str(v) for v in raw], "previous pump state used")
+        # Forward-fill from the last known state (leading unknowns: the first known state).
+        pos = np.maximum.accumulate(np.where(known, np.arange(known.size), -1))
+        pos[pos < 0] = np.flatnonzero(known)[0]
+        on = on[pos]
+    return on.astype(bool, copy=False)
 
 
 def read_logger(data: bytes, *, name: str, mapping: ColumnMapping | None = None,
@@ -1302,30 +1362,32 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
     if mapping.date:
         types[mapping.date] = pa.string()
     if mapping.pump:
-        types[mapping.pump] = pa.string()
+        types[mapping.pump] = pa.bool_()
     glitches = _Glitches()
+    blank_lines = False
     try:
-        table = _read_table(data, name, mapping, columns, offset, used, types)
-        end = len(data)
+        table = _read_table(data, name, mapping, columns, offset, used, types, allow_blank=False)
     except _RowWidthError:
+        # Slow path: find the lines of the wrong width (blank lines are allowed, not readings).
         bad = _bad_width_lines(data, mapping, offset, len(columns))
         last_nonblank = data.rstrip(b"\r\n \t").rfind(b"\n") + 1
         if len(bad) == 1 and bad[0][2] == last_nonblank:
             line, n, start = bad[0]
             glitches.add(np.array([line]), "", "incomplete_row",
                          f"{n} of {len(columns)} fields", "row dropped (last line incomplete)")
-            end = start
-            table = _read_table(data[:end], name, mapping, columns, offset, used, types)
-        else:
-            line, n, _ = bad[0] if bad else (None, 0, 0)
+            data = data[:start]
+        elif bad:
+            line, n, _ = bad[0]
             raise InputError(f"this line has {n} fields; expected {len(columns)} fields separated "
                              f"by {_delim_name(mapping.delimiter)}, as in the column-name line "
                              f"{mapping.header_line + 1}", file=name, row=line) from None
+        blank_lines = True
+        table = _read_table(data, name, mapping, columns, offset, used, types, allow_blank=True)
     n_rows = table.num_rows
     if n_rows == 0:
         raise InputError(f"the file has no readings after the column-name line "
                          f"{mapping.header_line + 1}; expected one line per reading", file=name)
-    lines = _row_lines(data[:end] if end != len(data) else data, offset, n_rows)
+    lines = _row_lines(data, offset, n_rows, blank_lines)
 
     # 1. time ---------------------------------------------------------------------------------
     time_arr = table.column(mapping.time)
@@ -1338,16 +1400,18 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
     keep = ~np.isnan(seconds)
 
     # 2. value columns: classify every cell once ---------------------------------------------
-    cells: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray, Any]] = {}
+    cells: dict[str, _Cells] = {}
     for col in oxygen_cols + temp_cols:
         cells[col] = _numeric_column(table.column(col), mapping.decimal)
     all_empty = np.ones(n_rows, dtype=bool)
-    for values, empty, text, _ in cells.values():
-        all_empty &= empty | (np.isnan(values) & ~text)
+    empties = [cell.empty for cell in cells.values()]
     if mapping.pump:
-        pump_arr = table.column(mapping.pump)
-        all_empty &= pc.fill_null(pc.equal(pc.utf8_length(pc.utf8_trim_whitespace(
-            pc.cast(pump_arr, pa.string()))), 0), True).to_numpy(zero_copy_only=False)
+        empties.append(_empty_mask(table.column(mapping.pump)))
+    for empty in empties:
+        if empty is None or not empty.any():
+            all_empty = np.zeros(n_rows, dtype=bool)
+            break
+        all_empty &= empty
     _time_glitches(time_empty, time_text, time_text_of, lines, mapping, name, glitches, expected,
                    all_empty & time_empty)
     glitches.add(lines[all_empty & time_empty], "", "missing", "", "row dropped (empty line)")
@@ -1388,8 +1452,7 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
     if kept.size < 2:
         raise InputError(f"the file has {kept.size} usable reading(s) in time order; expected at "
                          f"least two", file=name)
-    keep_mask = np.zeros(n_rows, dtype=bool)
-    keep_mask[kept] = True
+    all_kept = kept.size == n_rows
 
     # 5. values of kept readings ---------------------------------------------------------------
     row_lines = lines[kept]
@@ -1402,15 +1465,15 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
         codes = mapping.oxygen_error_codes if is_oxygen else mapping.temperature_error_codes
         what = f"oxygen [{mapping.oxygen_unit}]" if is_oxygen else "temperature [°C]"
         low, high = (lo, hi) if is_oxygen else TEMPERATURE_RANGE_C
-        clean[col] = _clean_values(col, cells[col], kept, row_lines, codes, what, low, high,
-                                   name, glitches, mapping)
+        clean[col] = _clean_values(col, cells[col], kept, all_kept, row_lines, codes, what, low,
+                                   high, name, glitches, mapping)
     for label, col in mapping.oxygen.items():
         oxygen[label] = clean[col]
     for label, col in mapping.temperature.items():
         temperature[label] = clean[col]
     pump = None
     if mapping.pump:
-        pump = _pump_states(table.column(mapping.pump), lines, keep_mask, mapping.pump, name,
+        pump = _pump_states(table.column(mapping.pump), kept, row_lines, mapping.pump, name,
                             glitches)
 
     # 6. gaps --------------------------------------------------------------------------------
@@ -1451,7 +1514,9 @@ def _clock_text(seconds: float) -> str:
     s = float(seconds) % 86400.0
     h, rem = divmod(s, 3600.0)
     m, sec = divmod(rem, 60.0)
-    return f"{int(h):02d}:{int(m):02d}:{sec:06.3f}".rstrip("0").rstrip(".")
+    text = f"{int(h):02d}:{int(m):02d}:{int(sec):02d}"
+    frac = f"{sec - int(sec):.6f}"[1:].rstrip("0")
+    return text + frac if frac != "." else text
 
 
 def _time_texts(t: np.ndarray, origin: Any, rows: np.ndarray, mapping: ColumnMapping) -> list[str]:
@@ -1464,57 +1529,70 @@ def _time_texts(t: np.ndarray, origin: Any, rows: np.ndarray, mapping: ColumnMap
     return [f"{v / factor:g}" for v in t]
 
 
-def _clean_values(col: str, cell: tuple[np.ndarray, np.ndarray, np.ndarray, Any],
-                  kept: np.ndarray, row_lines: np.ndarray, codes: tuple[float, ...], what: str,
-                  low: float, high: float, name: str, glitches: _Glitches,
+def _clean_values(col: str, cells: _Cells, kept: np.ndarray, all_kept: bool,
+                  row_lines: np.ndarray, codes: tuple[float, ...], what: str, low: float,
+                  high: float, name: str, glitches: _Glitches,
                   mapping: ColumnMapping) -> np.ndarray:
-    values_all, empty_all, text_all, text_of = cell
-    n_nonempty = int((~empty_all).sum())
-    n_text_all = int(text_all.sum())
-    values = values_all[kept]
-    empty = empty_all[kept]
-    text = text_all[kept]
-    code = np.zeros(values.shape, dtype=bool)
-    for c in codes:
-        code |= values == c
-    usable = ~(empty | text | code)
-    if not usable.any():
+    """Values of the kept readings with empty cells, error codes and text set missing.
+
+    One pass over the values finds every cell that is not a plausible reading (NaN compares
+    False); only those few cells are classified further.
+    """
+    values = cells.values if all_kept else cells.values[kept]
+    outside = ~((values >= low) & (values <= high))
+    idx = np.flatnonzero(outside)
+    inner_codes = [c for c in codes if low <= c <= high]
+    if inner_codes:
+        inside_code = np.zeros(values.size, dtype=bool)
+        for c in inner_codes:
+            inside_code |= values == c
+        idx = np.union1d(idx, np.flatnonzero(inside_code))
+    if idx.size == 0:
+        return values
+    rows = idx if all_kept else kept[idx]
+    empty = cells.empty_at(rows)
+    text = cells.text_at(rows)
+    code = np.isin(values[idx], codes) & ~empty & ~text
+    impossible = ~(empty | text | code)
+    n = values.size
+    n_empty, n_text, n_code = int(empty.sum()), int(text.sum()), int(code.sum())
+    if n_empty + n_text + n_code == n:
         parts = []
-        if text.any():
+        if n_text:
             i = int(np.flatnonzero(text)[0])
-            parts.append(f"{int(text.sum())} text values (first {text_of(kept[[i]])[0]!r} "
-                         f"at line {row_lines[i]})")
-        if code.any():
-            parts.append(f"{int(code.sum())} error codes")
-        if empty.any():
-            parts.append(f"{int(empty.sum())} empty")
-        first = int(row_lines[0])
+            parts.append(f"{n_text} text values (first {cells.text_of(rows[[i]])[0]!r} at line "
+                         f"{row_lines[idx[i]]})")
+        if n_code:
+            parts.append(f"{n_code} error codes")
+        if n_empty:
+            parts.append(f"{n_empty} empty")
         raise InputError(f"no usable {what} readings ({', '.join(parts)}); expected numbers",
-                         file=name, row=first, column=col)
-    if n_nonempty and n_text_all > TEXT_SHARE_MAX * n_nonempty:
-        i = int(np.flatnonzero(text)[0]) if text.any() else None
-        row = int(row_lines[i]) if i is not None else None
-        sample = f"; the first is {text_of(kept[[i]])[0]!r}" if i is not None else ""
-        raise InputError(f"{n_text_all} of {n_nonempty} values are text, not numbers; expected "
-                         f"{what} numbers with decimal mark {mapping.decimal!r}{sample}",
-                         file=name, row=row, column=col)
-    out = values.copy()
-    bad_range = usable & ((values < low) | (values > high))
-    if bad_range.any():
-        i = int(np.flatnonzero(bad_range)[0])
-        v = float(values[i])
-        raise InputError(f"value {v:g} cannot be {what}: expected {low:g} to {high:g}"
-                         f"{'' if what.startswith('temperature') else ''}; check the unit in the "
-                         f"mapping, or add the value to the mapping's error codes if the logger "
-                         f"writes it for a failed reading", file=name, row=int(row_lines[i]),
-                         column=col)
-    if empty.any():
-        glitches.add(row_lines[empty], col, "missing", "", "value set missing")
-    if text.any():
-        idx = np.flatnonzero(text)
-        glitches.add(row_lines[idx], col, "text_value", text_of(kept[idx]), "value set missing")
-    if code.any():
-        glitches.add(row_lines[code], col, "error_code", [f"{v:g}" for v in values[code]],
+                         file=name, row=int(row_lines[0]), column=col)
+    if n_text > TEXT_SHARE_MAX * (n - n_empty):
+        i = int(np.flatnonzero(text)[0])
+        raise InputError(f"{n_text} of {n - n_empty} values are text, not numbers; expected "
+                         f"{what} numbers with decimal mark {mapping.decimal!r}; the first is "
+                         f"{cells.text_of(rows[[i]])[0]!r}", file=name,
+                         row=int(row_lines[idx[i]]), column=col)
+    if impossible.any():
+        i = int(np.flatnonzero(impossible)[0])
+        raise InputError(f"value {float(values[idx[i]]):g} cannot be {what}: expected {low:g} to "
+                         f"{high:g}; check the unit in the mapping, or add the value to the "
+                         f"mapping's error codes if the logger writes it for a failed reading",
+                         file=name, row=int(row_lines[idx[i]]), column=col)
+    glitches.add(row_lines[idx[empty]], col, "missing", "", "value set missing")
+    if n_text:
+        glitches.add(row_lines[idx[text]], col, "text_value", cells.text_of(rows[text]),
                      "value set missing")
-    out[~usable] = np.nan
-    return out
+    if n_code:
+        glitches.add(row_lines[idx[code]], col, "error_code",
+                     [f"{v:g}" for v in values[idx[code]]], "value set missing")
+    values[idx] = np.nan
+    return values
+
+
+def _line_of_row(row: int, kept: np.ndarray, row_lines: np.ndarray) -> int | None:
+    pos = int(np.searchsorted(kept, row))
+    if pos < kept.size and kept[pos] == row:
+        return int(row_lines[pos])
+    return None
