@@ -20,7 +20,17 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from swimlab import __version__, checks, flume, hydrodynamics, oxygen, performance, trace, uptake, water
+from swimlab import (
+    __version__,
+    checks,
+    flume,
+    hydrodynamics,
+    oxygen,
+    performance,
+    trace,
+    uptake,
+    water,
+)
 from swimlab.errors import InputError, OutOfRangeError
 from swimlab.io import logger
 from swimlab.session import Session, step_table
@@ -548,7 +558,7 @@ def _performance(session, settings, fish_table, steps_sched, steps, measure, win
         if own_measure.empty or own_steps.empty:
             fits[fid] = None
             continue
-        speed_of_step = dict(zip(own_steps["step"], own_steps["corrected_speed_cm_s"].fillna(own_steps["set_speed_cm_s"]) * CM))
+        speed_of_step = dict(zip(own_steps["step"], own_steps["corrected_speed_cm_s"].fillna(own_steps["set_speed_cm_s"]) * CM, strict=True))
         u = own_measure["step"].map(speed_of_step).to_numpy(dtype=float)
         mo2 = own_measure["mo2_mg_kg_h"].to_numpy(dtype=float)
         fit_set = performance.fit_speed_metabolism(u, mo2, n_boot=n_boot, seed=seed, settings=settings)
