@@ -266,7 +266,7 @@ def _fit_decay(model: str, t_h: np.ndarray, y: np.ndarray, baseline: float | Non
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
-                popt, pcov = optimize.curve_fit(curve, t_h, y, p0=p0, bounds=(lower, upper), maxfev=20000)
+                popt, pcov = optimize.curve_fit(curve, t_h, y, p0=p0, bounds=(lower, upper), maxfev=5000)
         except (RuntimeError, ValueError):
             continue
         rss = float(np.sum((y - curve(t_h, *popt)) ** 2))
@@ -332,7 +332,8 @@ def epoc(
     baseline_method
         How the baseline was obtained: a key of :data:`BASELINE_METHODS`.
     models
-        Decay models to try, from :data:`DECAY_MODELS`.
+        Decay models to try, from :data:`DECAY_MODELS`; an empty tuple gives the trapezoid EPOC
+        only.
 
     Returns
     -------
@@ -394,7 +395,8 @@ def epoc(
     elif chosen is not None:
         base = chosen.asymptote_mg_kg_h
     else:
-        raise InputError("too few phases to fit the asymptote that baseline_method='fitted_asymptote' needs",
+        what = "no decay model was asked for" if not models else "too few phases to fit it"
+        raise InputError(f"baseline_method='fitted_asymptote' takes the baseline from a fitted decay, but {what}",
                          field="time_s")
     excess = y - base
     trapezoid = float(np.sum(0.5 * (excess[1:] + excess[:-1]) * steps)) / _S_PER_H
@@ -403,7 +405,7 @@ def epoc(
         chosen = None
         flags.append(flag("FIT_POORLY_CONSTRAINED", "MO2 never rose above the baseline; no recovery curve fitted",
                           scope="session"))
-    elif chosen is None:
+    elif chosen is None and models:
         flags.append(flag("FIT_POORLY_CONSTRAINED", "no recovery curve could be fitted", scope="session"))
     epoc_fit = epoc_rec = t50 = t95 = None
     if chosen is not None:
