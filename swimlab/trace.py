@@ -345,9 +345,28 @@ def phases_from_shape(time_s: Any, oxygen: Any, wait_s: float, *, min_rise: floa
         stops = np.concatenate((stops, [t.size]))
     rise = mean[stops - 1] - mean[starts]
     keep = rise >= rise_needed
+    starts, stops = starts[keep], stops[keep]
+    if starts.size:
+        # A flush's rise slows as the water nears air saturation, so the rate's sign ends the
+        # run too early; the flush is taken to last until the moving mean peaks, before the
+        # next rise.
+        span_end = np.concatenate((starts[1:], [t.size]))
+        lengths = span_end - stops
+        has_span = lengths > 0
+        s0, length = stops[has_span], lengths[has_span]
+        idx = np.arange(length.sum()) + np.repeat(s0 - (np.cumsum(length) - length), length)
+        offsets = np.cumsum(length) - length
+        values = mean[idx]
+        peak = np.maximum.reduceat(values, offsets)
+        seg_id = np.repeat(np.arange(s0.size), length)
+        at_peak = np.where(values == peak[seg_id], np.arange(idx.size), idx.size)
+        first = np.minimum.reduceat(at_peak, offsets)
+        new_stop = stops.copy()
+        new_stop[has_span] = idx[first] + 1
+        stops = np.maximum(stops, new_stop)
     marks = np.zeros(t.size + 1, dtype=np.int64)
-    np.add.at(marks, starts[keep], 1)
-    np.add.at(marks, stops[keep], -1)
+    np.add.at(marks, starts, 1)
+    np.add.at(marks, stops, -1)
     flush = np.cumsum(marks[:-1]) > 0
     label, cycle = _labels_from_flush(t, flush, wait)
     return _table_from_labels(t, label, cycle, "shape")

@@ -387,7 +387,9 @@ def phase_uptake(
     correction removes. MO2 by :func:`mo2`, per kg by :func:`mass_specific`.
     ``mo2_se_mg_kg_h`` = SE(slope) · (V_resp − V_fish) · 3600 / M, the slope's own standard
     error carried through the linear formula; the blanks' uncertainty is not included.
-    ``used`` = accepted and not excluded and MO2 > 0. The volume ratio is
+    ``used`` = accepted and not excluded and MO2 > 0. BACKGROUND_HIGH is raised for used
+    phases only (a phase whose background exceeds its decline gets MO2_NOT_POSITIVE). The volume
+    ratio is
     V_resp / V_fish, checked against ``volume_ratio_min`` … ``volume_ratio_max`` (common
     practice; Svendsen et al. 2016 discuss the choice).
     """
@@ -492,7 +494,7 @@ def phase_uptake(
                                      channel=str(channels[k]), cycle=int(cycles[k])))
 
     with np.errstate(invalid="ignore"):
-        high = accepted & ~excluded & (share > settings.background_share_max)
+        high = accepted & ~excluded & positive & (share > settings.background_share_max)
         not_positive = accepted & ~excluded & ~positive
     add("BACKGROUND_HIGH", high,
         lambda k: f"Background is {100 * share[k]:.0f} % of the phase's decline (limit "
