@@ -74,8 +74,24 @@ def masked_url(book: Any = None) -> str:
         return re.sub(r"://([^:/@]+):[^@]*@", r"://\1:***@", url)
 
 
+def session_table(book: Any, status: str | None = None):
+    """The lab book's list of sessions with the column names the pages use.
+
+    Columns: session_id, title, fish, trial_date, temperature_c, status, operator, version,
+    updated_at.
+    """
+    table = book.list_sessions(status=status) if status else book.list_sessions()
+    return table.rename(columns={"id": "session_id", "date": "trial_date", "temperature": "temperature_c"})
+
+
 def lab_settings_dict(book: Any) -> dict[str, Any]:
     """The lab book's settings overrides as a dict (empty when the lab keeps the defaults)."""
+    overrides = getattr(book, "get_lab_setting_overrides", None)
+    if overrides is not None:
+        try:
+            return dict(overrides() or {})
+        except Exception:  # noqa: BLE001 - settings are optional; the defaults apply
+            return {}
     try:
         value = book.get_lab_settings()
     except Exception:  # noqa: BLE001 - settings are optional; the defaults apply

@@ -17,7 +17,7 @@ common.page_header("Lab book", "Every trial in the lab book: find one, open it, 
 book = common.labbook()
 
 try:
-    table = book.list_sessions()
+    table = common.session_table(book)
 except Exception as exc:  # noqa: BLE001 - database errors are shown in words
     st.error(f"The lab book could not be read: {exc}")
     st.stop()
@@ -57,14 +57,15 @@ if not view.empty:
         counts = []
         for i, row in enumerate(view.itertuples(index=False), start=1):
             try:
-                counts.append(_flag_count(row.id, int(row.version), common.database_url()))
+                counts.append(_flag_count(row.session_id, int(row.version), common.database_url()))
             except ImportError:
                 counts.append(None)
             progress.progress(i / len(view), text=f"Counting flags… {i}/{len(view)}")
         progress.empty()
         view = view.assign(flags=pd.array(counts, dtype="Int64"))
 
-columns = [c for c in ["title", "fish", "date", "temperature", "status", "flags", "operator", "version", "updated_at", "id"]
+columns = [c for c in ["title", "fish", "trial_date", "temperature_c", "status", "flags", "operator", "version",
+                        "updated_at", "session_id"]
            if c in view.columns]
 st.dataframe(
     view[columns] if not view.empty else pd.DataFrame(columns=columns),
@@ -74,22 +75,22 @@ st.dataframe(
     column_config={
         "title": st.column_config.TextColumn("Title"),
         "fish": st.column_config.TextColumn("Fish"),
-        "date": st.column_config.DateColumn("Date"),
-        "temperature": st.column_config.NumberColumn("Temperature [°C]", format="%.1f"),
+        "trial_date": st.column_config.DateColumn("Date"),
+        "temperature_c": st.column_config.NumberColumn("Temperature [°C]", format="%.1f"),
         "status": st.column_config.TextColumn("Status"),
         "flags": st.column_config.NumberColumn("Flags", help="Number of flags raised by the checks"),
         "operator": st.column_config.TextColumn("Operator"),
         "version": st.column_config.NumberColumn("Version"),
         "updated_at": st.column_config.DatetimeColumn("Last saved"),
-        "id": st.column_config.TextColumn("Session id"),
+        "session_id": st.column_config.TextColumn("Session id"),
     },
 )
 st.caption(f"{len(view)} of {len(table)} session(s). Click a column header to sort.")
 
 # --- open -----------------------------------------------------------------------------------
 st.subheader("Open a session")
-options = list(table["id"]) if not table.empty else []
-labels = {row.id: f"{row.title} · {row.fish} · {row.status}" for row in table.itertuples(index=False)} if options else {}
+options = list(table["session_id"]) if not table.empty else []
+labels = {row.session_id: f"{row.title} · {row.fish} · {row.status}" for row in table.itertuples(index=False)} if options else {}
 cols = st.columns([3, 1])
 chosen = cols[0].selectbox("Session", options, format_func=lambda sid: labels.get(sid, sid), key="lb_open_id",
                            index=None, placeholder="choose a session")

@@ -17,12 +17,8 @@ common.page_header(
 book = common.labbook()
 
 
-def _normalise(table: pd.DataFrame) -> pd.DataFrame:
-    return table.rename(columns={"id": "session_id", "date": "trial_date", "temperature": "temperature_c"})
-
-
-submitted = _normalise(book.list_sessions(status="submitted"))
-everything = _normalise(book.list_sessions())
+submitted = common.session_table(book, status="submitted")
+everything = common.session_table(book)
 labels = {r.session_id: f"{r.title} · {r.fish} · {r.operator or 'no operator'}" for r in everything.itertuples(index=False)}
 
 st.subheader("Waiting for review")

@@ -1,13 +1,11 @@
 """Helpers for the page tests, the browser test and the app benchmark.
 
-The trial is invented: the "Kestrel Bay" lab's 12 L tunnel "KB-2" and a fish labelled KB-03.
-The logger file is made by :mod:`swimlab.sim` when it can (its truth is known to the simulator);
-:func:`synthetic_logger_csv` is a plain fallback of our own with a known oxygen decline per phase.
+The trial is invented: the "Kestrel Bay" lab's 10 L tunnel "KB-2" and a fish labelled KB-03.
+Logger files are made by :mod:`swimlab.sim` (its truth is known to the simulator).
 """
 
 from __future__ import annotations
 
-import copy
 import os
 import socket
 import subprocess
@@ -16,8 +14,6 @@ import time
 import urllib.request
 from pathlib import Path
 from typing import Any
-
-import numpy as np
 
 ROOT = Path(__file__).resolve().parents[1]
 CHROMIUM = "/usr/bin/chromium"
@@ -29,7 +25,7 @@ CHROMIUM_ARGS = [
 
 def typical_session(n_steps: int = 10, step_min: float = 20.0, *, fatigue: bool = True) -> dict[str, Any]:
     """A valid session dict: one fish, a step test of ``n_steps`` steps, 10-minute cycles."""
-    steps = [{"speed_cm_s": 10.0 + 5.0 * i, "duration_min": step_min} for i in range(n_steps)]
+    steps = [{"speed_cm_s": 15.0 + 5.0 * i, "duration_min": step_min} for i in range(n_steps)]
     total_s = n_steps * step_min * 60.0
     return {
         "session_id": "kb03trial01",
@@ -40,13 +36,13 @@ def typical_session(n_steps: int = 10, step_min: float = 20.0, *, fatigue: bool 
         "trial_date": "2031-06-02",
         "water": {"temperature_c": 15.0, "salinity": 0.0, "barometric_pressure_kpa": 101.3},
         "flume": {
-            "name": "KB-2 (12 L)", "section_shape": "rectangular", "section_width_cm": 15.0,
-            "section_height_cm": 15.0, "section_length_cm": 50.0, "respirometer_volume_l": 12.0,
+            "name": "KB-2 (10 L)", "section_shape": "rectangular", "section_width_cm": 15.0,
+            "section_height_cm": 15.0, "section_length_cm": 60.0, "respirometer_volume_l": 10.0,
             "calibration": [{"motor_setting": m, "speed_cm_s": 1.0 * m} for m in (0, 20, 40, 60, 80)],
         },
         "fish": [{
-            "fish_id": "KB-03", "species": "Oncorhynchus mykiss", "chamber": "A", "mass_g": 85.0,
-            "total_length_cm": 20.0, "body_depth_cm": 4.0, "body_width_cm": 2.2,
+            "fish_id": "KB-03", "species": "Oncorhynchus mykiss", "chamber": "A", "mass_g": 300.0,
+            "total_length_cm": 28.0, "body_depth_cm": 6.0, "body_width_cm": 3.4,
         }],
         "protocol": {
             "type": "step_ucrit", "start_s": 0.0, "steps": steps,
@@ -58,61 +54,29 @@ def typical_session(n_steps: int = 10, step_min: float = 20.0, *, fatigue: bool 
     }
 
 
-def synthetic_logger_csv(session: dict[str, Any], *, hz: float = 1.0, channels: list[str] | None = None,
-                         hours: float | None = None, seed: int = 1) -> bytes:
-    """A logger export (time in s, oxygen in % air saturation per chamber, temperature) for ``session``.
+def logger_file(session: dict[str, Any], *, seed: int = 7) -> tuple[str, bytes]:
+    """Return (file name, bytes) of a logger export for ``session``, simulated by :mod:`swimlab.sim`.
 
-    Oxygen is restored to 98 % in each flush and falls linearly in wait and measure phases at a
-    rate that grows with the set speed; sensor noise 0.1 % air saturation.
+    The simulated fish swims the session's steps in the session's respirometer; its trace starts
+    with a flush at time 0, as the session's cycle schedule says.
     """
-    rng = np.random.default_rng(seed)
-    cycle = session["protocol"]["cycle"]
-    flush, wait, meas = cycle["flush_s"], cycle["wait_s"], cycle["measure_s"]
-    period = flush + wait + meas
-    steps = session["protocol"].get("steps") or [{"speed_cm_s": 20.0, "duration_min": 60.0}]
-    total = hours * 3600.0 if hours else sum(s["duration_min"] for s in steps) * 60.0
-    t = np.arange(0.0, total, 1.0 / hz)
-    ends = np.cumsum([s["duration_min"] * 60.0 for s in steps])
-    idx = np.minimum(np.searchsorted(ends, t, side="right"), len(steps) - 1)
-    speed = np.array([s["speed_cm_s"] for s in steps])[idx]
-    rate = (0.004 + 0.0002 * speed)  # % air saturation per second
-    phase_t = np.mod(t - cycle.get("start_s", 0.0), period)
-    closed = np.clip(phase_t - flush, 0.0, None)
-    channels = channels or [f["chamber"] for f in session["fish"]]
-    lines = ["time_s," + ",".join(f"oxygen % air sat {c}" for c in channels) + ",temperature_c"]
-    columns = [98.0 - rate * closed * (1.0 + 0.05 * k) + rng.normal(0.0, 0.1, t.size) for k in range(len(channels))]
-    temp = session["water"]["temperature_c"] + rng.normal(0.0, 0.01, t.size)
-    body = np.column_stack([t, *columns, temp])
-    for row in body:
-        lines.append(",".join(f"{v:.3f}" for v in row))
-    return ("\n".join(lines) + "\n").encode()
-
-
-def logger_file(session: dict[str, Any]) -> tuple[str, bytes]:
-    """Return (file name, bytes) of a logger export for ``session``: from swimlab.sim when it exists."""
-    try:
-        from swimlab import sim
-    except ImportError:
-        return "kb03_trace.csv", synthetic_logger_csv(session)
-    trial = sim.simulate_trial(**sim_arguments(session)) if hasattr(sim, "simulate_trial") else None
-    if trial is None or not getattr(trial, "csv_bytes", None):
-        return "kb03_trace.csv", synthetic_logger_csv(session)
-    return "kb03_trace.csv", trial.csv_bytes
-
-
-def sim_arguments(session: dict[str, Any]) -> dict[str, Any]:
-    """Keyword arguments for ``sim.simulate_trial`` that match ``session`` (those it accepts)."""
-    import inspect
-
     from swimlab import sim
 
-    params = inspect.signature(sim.simulate_trial).parameters
-    wanted: dict[str, Any] = {}
-    if "session" in params:
-        from swimlab.session import Session
-
-        wanted["session"] = Session.model_validate(copy.deepcopy(session))
-    return {k: v for k, v in wanted.items() if k in params}
+    protocol, cycle = session["protocol"], session["protocol"]["cycle"]
+    channels = [f["chamber"] for f in session["fish"]]
+    trial = sim.simulate_trial(
+        seed=seed,
+        channels=channels,
+        speeds_m_s=[s["speed_cm_s"] / 100.0 for s in protocol["steps"]],
+        step_duration_s=[s["duration_min"] * 60.0 for s in protocol["steps"]],
+        flush_s=cycle["flush_s"], wait_s=cycle["wait_s"], measure_s=cycle["measure_s"],
+        respirometer_volume_l=session["flume"]["respirometer_volume_l"],
+        fish_mass_g={f["chamber"]: f["mass_g"] for f in session["fish"]},
+        temperature_c=session["water"]["temperature_c"],
+        salinity=session["water"].get("salinity", 0.0),
+        pressure_pa=session["water"].get("barometric_pressure_kpa", 101.325) * 1000.0,
+    )
+    return "kb03_trace.csv", trial.csv_bytes
 
 
 def free_port() -> int:
