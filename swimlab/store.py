@@ -129,18 +129,19 @@ def flatten_document(document: Any, prefix: str = "") -> dict[str, Any]:
     Empty dicts and lists are kept as leaves, so that emptying a list shows in a diff.
     """
     out: dict[str, Any] = {}
-    if isinstance(document, dict):
-        if not document and prefix:
-            out[prefix] = {}
-        for key, value in document.items():
-            out.update(flatten_document(value, f"{prefix}.{key}" if prefix else str(key)))
-    elif isinstance(document, list):
-        if not document and prefix:
-            out[prefix] = []
-        for index, value in enumerate(document):
-            out.update(flatten_document(value, f"{prefix}.{index}" if prefix else str(index)))
-    else:
-        out[prefix] = document
+    stack: list[tuple[str, Any]] = [(prefix, document)]
+    while stack:
+        path, node = stack.pop()
+        if isinstance(node, dict):
+            items = [(f"{path}.{k}" if path else str(k), v) for k, v in node.items()]
+        elif isinstance(node, list):
+            items = [(f"{path}.{i}" if path else str(i), v) for i, v in enumerate(node)]
+        else:
+            out[path] = node
+            continue
+        if not items and path:
+            out[path] = node
+        stack.extend(reversed(items))  # depth first, in document order
     return out
 
 
@@ -154,20 +155,29 @@ def _same(a: Any, b: Any) -> bool:
     return type(a) is type(b) and a == b
 
 
+def _has_children(flat: Mapping[str, Any], path: str) -> bool:
+    start = path + "."
+    return any(key.startswith(start) for key in flat)
+
+
 def diff_documents(old: Any, new: Any) -> list[dict[str, Any]]:
     """Field-level changes from ``old`` to ``new``: ``[{"field", "from", "to"}, …]``.
 
     Paths are those of :func:`flatten_document`, in the order they appear (old first); a field
-    that is absent on one side shows ``None`` there.
+    that is absent on one side shows ``None`` there. A list or dict that was empty on one side
+    and has entries on the other shows as its entries only (``tags.0: None → "x"``).
     """
     before, after = flatten_document(old), flatten_document(new)
     changes = []
     for path in [*before, *(p for p in after if p not in before)]:
         a, b = before.get(path, _ABSENT), after.get(path, _ABSENT)
-        if not _same(a, b):
-            changes.append(
-                {"field": path, "from": None if a is _ABSENT else a, "to": None if b is _ABSENT else b}
-            )
+        if _same(a, b):
+            continue
+        if (b is _ABSENT and a in ({}, []) and _has_children(after, path)) or (
+            a is _ABSENT and b in ({}, []) and _has_children(before, path)
+        ):
+            continue  # an empty container that gained (or lost) entries: the entries show
+        changes.append({"field": path, "from": None if a is _ABSENT else a, "to": None if b is _ABSENT else b})
     return changes
 
 

@@ -8,7 +8,7 @@ trust authentication for its one local user. When the tests run as root, the ser
 ``postgres`` system user (PostgreSQL refuses to run as root). The cluster is stopped and its
 folder removed when the test process exits.
 
-Each test gets its own database (:func:`fresh_database`), dropped afterwards
+Each test gets its own empty schema (:func:`fresh_database`), dropped afterwards
 (:func:`drop_database`).
 """
 
@@ -134,30 +134,43 @@ def _admin(url: str):
 
 
 def fresh_database(url: str) -> str:
-    """Create a new, empty database on the server at ``url``; return its URL."""
+    """Make a new, empty schema on the server at ``url``; return a URL that works inside it.
+
+    A schema (selected with the connection option ``search_path``) isolates one test as well as
+    a database would, and is made in milliseconds where ``CREATE DATABASE`` takes a few tenths
+    of a second.
+    """
     import sqlalchemy as sa
 
     name = f"swimlab_test_{uuid.uuid4().hex[:12]}"
     engine = _admin(url)
     try:
         with engine.connect() as conn:
-            conn.execute(sa.text(f'CREATE DATABASE "{name}"'))
+            conn.execute(sa.text(f'CREATE SCHEMA "{name}"'))
     finally:
         engine.dispose()
-    return sa.make_url(url).set(database=name).render_as_string(hide_password=False)
+    parsed = sa.make_url(url).update_query_dict({"options": f"-csearch_path={name}"})
+    return parsed.render_as_string(hide_password=False)
+
+
+def _schema_of(url: str) -> str:
+    import sqlalchemy as sa
+
+    options = sa.make_url(url).query.get("options", "")
+    name = options.removeprefix("-csearch_path=") if isinstance(options, str) else ""
+    if not name.startswith("swimlab_test_"):
+        raise ValueError(f"refusing to drop {name!r}: not a test schema")
+    return name
 
 
 def drop_database(url: str) -> None:
-    """Drop a database made by :func:`fresh_database` (closing its other connections)."""
+    """Drop a schema made by :func:`fresh_database`, with everything in it."""
     import sqlalchemy as sa
 
-    parsed = sa.make_url(url)
-    name = parsed.database
-    if not name or not name.startswith("swimlab_test_"):
-        raise ValueError(f"refusing to drop {name!r}: not a test database")
-    engine = _admin(parsed.set(database="postgres").render_as_string(hide_password=False))
+    name = _schema_of(url)
+    engine = _admin(sa.make_url(url).difference_update_query(["options"]).render_as_string(hide_password=False))
     try:
         with engine.connect() as conn:
-            conn.execute(sa.text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))
+            conn.execute(sa.text(f'DROP SCHEMA IF EXISTS "{name}" CASCADE'))
     finally:
         engine.dispose()

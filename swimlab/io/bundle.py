@@ -348,7 +348,7 @@ def _rows_at(document: Mapping[str, Any], path: tuple[str, ...]) -> list[dict[st
 def table_text(session_document: Mapping[str, Any], table: TableSpec) -> str:
     """The CSV text of one table for a session's JSON document (header row first)."""
     buffer = io.StringIO()
-    writer = csv.writer(buffer, lineterminator="\n")
+    writer = csv.writer(buffer, lineterminator="\r\n")  # RFC 4180; quotes CR and LF in cells
     writer.writerow(table.columns)
     for row in _rows_at(session_document, table.path):
         writer.writerow([_cell(row.get(column)) for column in table.columns])
@@ -653,15 +653,18 @@ def _check_schema(doc: dict[str, Any]) -> None:
     raise InputError(f"{first.message}{more}", file=SESSION_JSON, field=where)
 
 
-def _cells_equal(expected: str, found: str) -> bool:
+def _cells_equal(value: Any, expected: str, found: str) -> bool:
+    """Whether a cell holds the JSON ``value`` (rendered ``expected``); formatting may differ."""
     if expected == found:
         return True
-    if expected.lower() in ("true", "false") and found.lower() == expected.lower():
-        return True
-    try:
-        return float(expected) == float(found)
-    except ValueError:
-        return False
+    if isinstance(value, bool):
+        return found.strip().lower() == expected
+    if isinstance(value, int | float):
+        try:
+            return float(found) == float(value)
+        except ValueError:
+            return False
+    return False
 
 
 def check_table(name: str, data: bytes, session_document: Mapping[str, Any]) -> bool:
@@ -708,9 +711,8 @@ def check_table(name: str, data: bytes, session_document: Mapping[str, Any]) -> 
     if len(set(header)) != len(header):
         dup = next(c for c in header if header.count(c) > 1)
         raise InputError("column appears more than once", file=name, row=1, column=dup)
-    expected_rows = [
-        [_cell(record.get(c)) for c in table.columns] for record in _rows_at(session_document, table.path)
-    ]
+    records = _rows_at(session_document, table.path)
+    expected_rows = [[_cell(record.get(c)) for c in table.columns] for record in records]
     body = [row for row in rows[1:] if any(cell.strip() for cell in row)]
     for number, row in enumerate(rows[1:], start=2):
         if any(cell.strip() for cell in row) and len(row) != len(header):
@@ -726,10 +728,10 @@ def check_table(name: str, data: bytes, session_document: Mapping[str, Any]) -> 
             file=name,
             row=row,
         )
-    for (number, row), expected in zip(numbered, expected_rows, strict=True):
+    for (number, row), expected, record in zip(numbered, expected_rows, records, strict=True):
         found = dict(zip(header, row, strict=True))
         for column, want in zip(table.columns, expected, strict=True):
-            if not _cells_equal(want, found[column]):
+            if not _cells_equal(record.get(column), want, found[column]):
                 raise InputError(
                     f"holds {found[column]!r} but session.json (the authoritative record) has "
                     f"{want!r}; edit the session, not the table",
