@@ -13,7 +13,8 @@ the trace clock. Plain rules, stated once here and in :func:`gait_summary`:
 - Burst-and-coast onset is the speed of the first step with a ``burst`` event whose count is
   not zero (a burst row without a count is one burst; a count of 0 records that none were seen).
 - Bursts per minute at a step are its bursts over the time swum in it: the whole step, or up to
-  the first ``fatigue`` event if the fish fatigued within it.
+  the first ``fatigue`` event if the fish fatigued within it; bursts after fatigue are not
+  counted.
 - Speeds are also given as a share of Ucrit (if given) and of Up–c (if found); Drucker & Jensen
   (1996) recommend comparing fish of different sizes at speeds as a percentage of Up–c.
 """
@@ -238,7 +239,7 @@ def gait_summary(
             continue
         if kinds[i] == "gait_change" and upc is None and is_pectoral_caudal_transition(descriptions[i]):
             upc, upc_time, upc_step = float(speed[j]), float(times[i]), j + 1
-        elif kinds[i] == "burst":
+        elif kinds[i] == "burst" and not fatigue_seen:
             bursts[j] += counts[i]
         elif kinds[i] == "fatigue" and j is not None and not fatigue_seen:
             fatigue_seen = True
