@@ -36,6 +36,7 @@ import pyarrow.compute as pc
 import pyarrow.csv as pacsv
 
 from swimlab.errors import InputError
+from swimlab.oxygen import UNITS
 
 __all__ = [
     "ColumnMapping",
@@ -59,8 +60,8 @@ __all__ = [
 
 # --- vocabulary -------------------------------------------------------------------------------
 
-OXYGEN_UNITS = ("% air saturation", "mg/L", "µmol/L", "kPa", "hPa", "mmHg")
-"""Canonical oxygen unit names (the same names as :data:`swimlab.oxygen.UNITS`)."""
+OXYGEN_UNITS = UNITS
+"""Canonical oxygen unit names (:data:`swimlab.oxygen.UNITS`)."""
 
 TIME_FORMATS = (
     "iso", "dayfirst", "monthfirst", "time_of_day", "elapsed_s", "elapsed_min", "elapsed_h",
@@ -723,7 +724,10 @@ def guess_mapping(data: bytes, *, name: str) -> ColumnMapping:
     named = [c for c in cols if _RE_TIME.search(norm[c]) and not _RE_TEMP.search(norm[c])]
     time_col: str | None = None
     date_col: str | None = None
-    for wanted in (("iso", "dmy"), ("time_of_day",), ("number",)):
+    for c in cols:
+        if kinds[c] in ("iso", "dmy") and not any(":" in v for v in values[c]):
+            kinds[c] = kinds[c] + "_date"       # a date without a clock time
+    for wanted in (("iso", "dmy"), ("time_of_day",), ("iso_date", "dmy_date"), ("number",)):
         found = [c for c in named if kinds[c] in wanted]
         if found:
             time_col = found[0]
@@ -736,13 +740,13 @@ def guess_mapping(data: bytes, *, name: str) -> ColumnMapping:
         raise InputError(f"found no time column; expected a column named like 'time', 'date' "
                          f"or 'elapsed' holding date-times, clock times or elapsed numbers; "
                          f"columns are {cols}", file=name)
-    kind = kinds[time_col]
+    kind = kinds[time_col].removesuffix("_date")
     if kind == "time_of_day":
-        dates = [c for c in cols if c != time_col and kinds[c] in ("iso", "dmy")
+        dates = [c for c in cols if c != time_col and kinds[c] in ("iso_date", "dmy_date")
                  and _RE_DATE_ONLY.match(norm[c])]
         if dates:
             date_col = dates[0]
-            kind = kinds[date_col]
+            kind = kinds[date_col].removesuffix("_date")
     if kind == "iso":
         time_format = "iso"
     elif kind == "dmy":
@@ -987,17 +991,16 @@ _CONVERSION_ERROR = re.compile(r"In CSV column #(\d+)")
 
 
 def _read_table(data: bytes, name: str, mapping: ColumnMapping, columns: list[str],
-                offset: int, used: list[str], types: dict[str, pa.DataType],
-                allow_blank: bool) -> pa.Table:
+                offset: int, used: list[str], types: dict[str, pa.DataType]) -> pa.Table:
     """Parse the readings once; columns whose text does not convert are re-read as text.
 
-    With ``allow_blank`` False a blank line is a parse error (so that the fast path need not
-    count lines to map readings to line numbers).
+    Empty lines are kept as rows of empty cells, so that row k of the table is the k-th line
+    after the column names (no line counting needed).
     """
     read_options = pacsv.ReadOptions(column_names=columns,
                                      encoding=_arrow_encoding(mapping.encoding, data, offset))
     parse_options = pacsv.ParseOptions(delimiter=mapping.delimiter,
-                                       ignore_empty_lines=allow_blank)
+                                       ignore_empty_lines=False)
     types = dict(types)
     retries = 0
     while True:
@@ -1038,30 +1041,12 @@ def _bad_width_lines(data: bytes, mapping: ColumnMapping, offset: int,
     pos = offset
     for k, raw in enumerate(data[offset:].split(b"\n")):
         line = raw.decode(mapping.encoding, errors="replace").rstrip("\r")
-        if line.strip():
+        if line:
             n = len(_fields(line, mapping.delimiter))
             if n != width:
                 out.append((first_line + k, n, pos))
         pos += len(raw) + 1
     return out
-
-
-def _row_lines(data: bytes, offset: int, n_rows: int, blank_lines: bool) -> np.ndarray:
-    """1-based file line of each parsed reading (blank lines, when any, are not readings)."""
-    first = data.count(b"\n", 0, offset) + 1
-    if not blank_lines:
-        return first + np.arange(n_rows, dtype=np.int64)
-    raw = np.frombuffer(data, dtype=np.uint8, offset=offset)
-    ends = np.flatnonzero(raw == 10)
-    starts = np.concatenate([[0], ends + 1])
-    stops = np.concatenate([ends, [raw.size]])
-    lengths = stops - starts
-    ends_cr = np.zeros(lengths.size, dtype=bool)
-    has = lengths > 0
-    ends_cr[has] = raw[stops[has] - 1] == 13
-    blank = (lengths == 0) | ((lengths == 1) & ends_cr)
-    nonblank = np.flatnonzero(~blank)
-    return first + nonblank[:n_rows].astype(np.int64)
 
 
 @dataclass
@@ -1364,11 +1349,10 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
     if mapping.pump:
         types[mapping.pump] = pa.bool_()
     glitches = _Glitches()
-    blank_lines = False
     try:
-        table = _read_table(data, name, mapping, columns, offset, used, types, allow_blank=False)
+        table = _read_table(data, name, mapping, columns, offset, used, types)
     except _RowWidthError:
-        # Slow path: find the lines of the wrong width (blank lines are allowed, not readings).
+        # Slow path: find the lines of the wrong width (empty lines are rows of empty cells).
         bad = _bad_width_lines(data, mapping, offset, len(columns))
         last_nonblank = data.rstrip(b"\r\n \t").rfind(b"\n") + 1
         if len(bad) == 1 and bad[0][2] == last_nonblank:
@@ -1381,13 +1365,13 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
             raise InputError(f"this line has {n} fields; expected {len(columns)} fields separated "
                              f"by {_delim_name(mapping.delimiter)}, as in the column-name line "
                              f"{mapping.header_line + 1}", file=name, row=line) from None
-        blank_lines = True
-        table = _read_table(data, name, mapping, columns, offset, used, types, allow_blank=True)
+        table = _read_table(data, name, mapping, columns, offset, used, types)
     n_rows = table.num_rows
     if n_rows == 0:
         raise InputError(f"the file has no readings after the column-name line "
                          f"{mapping.header_line + 1}; expected one line per reading", file=name)
-    lines = _row_lines(data, offset, n_rows, blank_lines)
+    # Blank lines are read as rows of empty cells, so row k is line first + k.
+    lines = data.count(b"\n", 0, offset) + 1 + np.arange(n_rows, dtype=np.int64)
 
     # 1. time ---------------------------------------------------------------------------------
     time_arr = table.column(mapping.time)
