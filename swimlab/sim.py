@@ -289,8 +289,9 @@ def simulate_trial(
     failed_flushes
         Cycles or (channel, cycle) pairs whose flush runs the pump but exchanges no water.
     temperature_excursions
-        Cycles or (channel, cycle) pairs whose measure phase has a temperature excursion of
-        ``excursion_c`` (a half-sine rise and fall). [°C]
+        Cycles or (channel, cycle) pairs whose measure phase has a temperature excursion: a
+        steady rise of ``excursion_c`` across the phase, back to the trend over the next flush
+        (a heater overshooting). [°C]
     glitches
         Number of glitch lines written in the file.
     noiseless
@@ -338,8 +339,9 @@ def simulate_trial(
     total = before + steps_total + after
     n = int(np.floor(total / dt + 1e-9))
     t = np.arange(n) * dt
-    if n < 2:
-        raise InputError("the trial is shorter than two readings", field="step_duration_s")
+    if total < period:
+        raise InputError(f"the trial ({total:g} s) is shorter than one cycle ({period:g} s)",
+                         field="step_duration_s")
 
     # schedule of phases (flush first at t = 0)
     k = np.floor(t / period + 1e-12)
@@ -418,7 +420,9 @@ def simulate_trial(
                                  field="temperature_excursions")
             a, b = t[m_first[hit[0]]], t[m_last[hit[0]]]
             inside = (t >= a) & (t <= b)
-            temp[inside] += excursion_c * np.sin(np.pi * (t[inside] - a) / (b - a))
+            temp[inside] += excursion_c * (t[inside] - a) / (b - a)
+            back = (t > b) & (t <= b + flush)
+            temp[back] += excursion_c * (1.0 - (t[back] - b) / flush)
         logged_t = temp + (rng.normal(0.0, temperature_noise_c, n) if temperature_noise_c > 0 else 0.0)
         t_text = _format(logged_t, temperature_decimals)
         logged_t = np.array(t_text, dtype=float)
