@@ -51,7 +51,7 @@ BASELINE_METHODS = {
     "pre_exercise": "routine MO2 measured before the exercise (Lee et al. 2003 used routine MO2)",
     "smr": "the fish's standard metabolic rate (Zhang et al. 2018 followed recovery to SMR)",
     "fitted_asymptote": "the asymptote of the fitted decay, MO2 = a + b·exp(−c t) (as in the "
-    "Silurus asotus EPOC study in Acta Hydrobiologica Sinica, where a is resting MO2)",
+    "Silurus asotus EPOC study, Acta Hydrobiologica Sinica 2008, where a is resting MO2)",
 }
 """How the baseline was obtained; ``fitted_asymptote`` takes it from the fit itself."""
 
@@ -358,7 +358,7 @@ def epoc(
     EPOC = ∫₀^∞ Σ A_i e^{−k_i t} dt = Σ A_i / k_i (÷ 3600 s/h). Recovery to a fraction p of the
     way back: e(t_p) = (1 − p) e(0); for one phase t_p = −ln(1 − p)/k, so t₅₀ = ln 2/k and
     t₉₅ = ln 20/k — the relations behind the EPOC and recovery times reported for Silurus asotus
-    in Acta Hydrobiologica Sinica (abstract read; checked in the tests).
+    in Acta Hydrobiologica Sinica (2008; abstract read; checked in the tests).
     """
     _validate.choice("baseline_method", baseline_method, BASELINE_METHODS)
     for model in models:
