@@ -50,7 +50,9 @@ def _free_port() -> int:
         return sock.getsockname()[1]
 
 
-def _run(cmd: list[str], *, as_user: str | None, timeout: float = 60) -> subprocess.CompletedProcess:
+def _run(
+    cmd: list[str], *, as_user: str | None, timeout: float = 60
+) -> subprocess.CompletedProcess:
     if as_user:
         cmd = ["runuser", "-u", as_user, "--", *cmd]
     return subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, check=False)
@@ -75,7 +77,19 @@ def _start() -> tuple[str | None, str]:
     data = os.path.join(folder, "data")
     log = os.path.join(folder, "server.log")
     init = _run(
-        [f"{bindir}/initdb", "-D", data, "-A", "trust", "-U", USER, "-E", "UTF8", "--locale=C", "--no-sync"],
+        [
+            f"{bindir}/initdb",
+            "-D",
+            data,
+            "-A",
+            "trust",
+            "-U",
+            USER,
+            "-E",
+            "UTF8",
+            "--locale=C",
+            "--no-sync",
+        ],
         as_user=as_user,
     )
     if init.returncode != 0:
@@ -168,7 +182,9 @@ def drop_database(url: str) -> None:
     import sqlalchemy as sa
 
     name = _schema_of(url)
-    engine = _admin(sa.make_url(url).difference_update_query(["options"]).render_as_string(hide_password=False))
+    engine = _admin(
+        sa.make_url(url).difference_update_query(["options"]).render_as_string(hide_password=False)
+    )
     try:
         with engine.connect() as conn:
             conn.execute(sa.text(f'DROP SCHEMA IF EXISTS "{name}" CASCADE'))

@@ -43,16 +43,33 @@ def _rich_session() -> tuple[Session, dict[str, bytes]]:
     """A session with every table non-empty and two raw files."""
     base = make_session(
         events=[
-            {"time_s": 600.0, "kind": "gait_change", "fish_id": "NW-01", "description": "burst-and-coast, \"tail\" beats"},
-            {"time_s": 3500.0, "kind": "fatigue", "fish_id": "NW-01", "description": "rests on grid\nfor 10 s"},
+            {
+                "time_s": 600.0,
+                "kind": "gait_change",
+                "fish_id": "NW-01",
+                "description": 'burst-and-coast, "tail" beats',
+            },
+            {
+                "time_s": 3500.0,
+                "kind": "fatigue",
+                "fish_id": "NW-01",
+                "description": "rests on grid\nfor 10 s",
+            },
         ],
         exclusions=[{"channel": "A", "cycle": 3, "reason": "bubbles on the sensor", "by": "ana"}],
     )
-    session, raw = with_raw(base, ("run 1.txt", TRACE, "trial"), ("blank after.csv", BLANK_TRACE, "blank"))
+    session, raw = with_raw(
+        base, ("run 1.txt", TRACE, "trial"), ("blank after.csv", BLANK_TRACE, "blank")
+    )
     doc = session.to_json_dict()
     doc["blanks"] = [
         {"channel": "A", "when": "before", "time_s": -600.0, "slope_mg_l_h": -0.012},
-        {"channel": "A", "when": "after", "time_s": 4000.0, "raw_file_sha256": hashlib.sha256(BLANK_TRACE).hexdigest()},
+        {
+            "channel": "A",
+            "when": "after",
+            "time_s": 4000.0,
+            "raw_file_sha256": hashlib.sha256(BLANK_TRACE).hexdigest(),
+        },
     ]
     return Session.from_json_dict(doc), raw
 
@@ -124,7 +141,9 @@ def test_tables_hold_the_session_lists(written):
 
 def test_same_name_raw_files_are_kept_apart(tmp_path):
     other = TRACE + b"4;98,8;12,6\n"
-    session, raw = with_raw(make_session(), ("C:\\logger\\run.txt", TRACE, "trial"), ("run.txt", other, "trial"))
+    session, raw = with_raw(
+        make_session(), ("C:\\logger\\run.txt", TRACE, "trial"), ("run.txt", other, "trial")
+    )
     path = write_bundle(session, raw, tmp_path / "b")
     raw_names = sorted(p.name for p in (path / "raw").iterdir())
     assert raw_names == sorted(["run.txt", f"{hashlib.sha256(other).hexdigest()[:12]}_run.txt"])
@@ -133,22 +152,37 @@ def test_same_name_raw_files_are_kept_apart(tmp_path):
 
 def test_zip_of_a_folder_is_read(tmp_path, written):
     path, session, raw = written
-    archive = shutil.make_archive(str(tmp_path / "zipped"), "zip", root_dir=tmp_path, base_dir="bundle")
+    archive = shutil.make_archive(
+        str(tmp_path / "zipped"), "zip", root_dir=tmp_path, base_dir="bundle"
+    )
     contents = read_bundle(archive)
     assert contents.session == session and contents.raw_files == raw
 
 
-text = st.text(alphabet=st.characters(blacklist_categories=("Cs", "Cc")) | st.sampled_from(",;\"'\n\r\t"), max_size=40)
+text = st.text(
+    alphabet=st.characters(blacklist_categories=("Cs", "Cc")) | st.sampled_from(",;\"'\n\r\t"),
+    max_size=40,
+)
 
 
-@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(
+    max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
 @given(
     title=text.filter(lambda s: s.strip() != ""),
     descriptions=st.lists(text, max_size=4),
-    mass=st.floats(min_value=0.001, max_value=20000, allow_nan=False),  # below the 30 L respirometer
+    mass=st.floats(
+        min_value=0.001, max_value=20000, allow_nan=False
+    ),  # below the 30 L respirometer
 )
 def test_any_text_and_numbers_survive_a_round_trip(tmp_path_factory, title, descriptions, mass):
-    base = session_dict(title=title, events=[{"time_s": 10.0 * i, "kind": "note", "description": d} for i, d in enumerate(descriptions)])
+    base = session_dict(
+        title=title,
+        events=[
+            {"time_s": 10.0 * i, "kind": "note", "description": d}
+            for i, d in enumerate(descriptions)
+        ],
+    )
     base["fish"][0]["mass_g"] = mass
     session = Session.from_json_dict(base)
     folder = tmp_path_factory.mktemp("prop")
@@ -217,7 +251,9 @@ def test_session_json_not_json(written):
 def test_nan_is_not_json(written):
     path, _, _ = written
     raw = (path / SESSION_JSON).read_text(encoding="utf-8")
-    (path / SESSION_JSON).write_text(raw.replace('"mass_g": 152.3', '"mass_g": NaN'), encoding="utf-8")
+    (path / SESSION_JSON).write_text(
+        raw.replace('"mass_g": 152.3', '"mass_g": NaN'), encoding="utf-8"
+    )
     _refused(path, file=SESSION_JSON)
 
 
@@ -269,7 +305,10 @@ def test_raw_file_listed_but_absent(written):
 
 def test_raw_file_referred_to_but_not_listed(written):
     path, session, _ = written
-    _rewrite_json(path, lambda d: d.__setitem__("files", [e for e in d["files"] if e["path"] != "raw/run 1.txt"]))
+    _rewrite_json(
+        path,
+        lambda d: d.__setitem__("files", [e for e in d["files"] if e["path"] != "raw/run 1.txt"]),
+    )
     _refused(path, file=SESSION_JSON, field="session.raw_files.0.sha256")
 
 
@@ -315,7 +354,9 @@ def test_csv_ragged_row(written):
 def test_csv_reformatted_with_the_same_values_is_accepted_with_a_note(written):
     path, session, _ = written
     text = (path / "fish.csv").read_text(encoding="utf-8")
-    (path / "fish.csv").write_text(text.replace("152.3", "152.30").replace("\r\n", "\n"), encoding="utf-8", newline="")
+    (path / "fish.csv").write_text(
+        text.replace("152.3", "152.30").replace("\r\n", "\n"), encoding="utf-8", newline=""
+    )
     contents = read_bundle(path)
     assert contents.session == session
     assert any(p.startswith("fish.csv: re-formatted") for p in contents.problems)
@@ -449,7 +490,9 @@ def test_failure_half_way_leaves_nothing(tmp_path, monkeypatch, as_zip):
 def test_failed_overwrite_keeps_the_previous_bundle(tmp_path, monkeypatch, written):
     path, session, raw = written
     before = _listing(path)
-    monkeypatch.setattr(bundle_module, "read_bundle", lambda p: (_ for _ in ()).throw(InputError("check failed")))
+    monkeypatch.setattr(
+        bundle_module, "read_bundle", lambda p: (_ for _ in ()).throw(InputError("check failed"))
+    )
     with pytest.raises(InputError):
         write_bundle(session, raw, path, overwrite=True)
     assert _listing(path) == before

@@ -18,9 +18,10 @@ import time
 
 import pytest
 import sqlalchemy as sa
+import store_fixtures
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-from store_fixtures import TRACE, db_url, edited, labbook, make_session, with_raw  # noqa: F401
+from store_fixtures import TRACE, edited, make_session, with_raw
 
 from swimlab.errors import ConflictError, InputError, PermissionDeniedError
 from swimlab.session import Session
@@ -37,6 +38,9 @@ from swimlab.store import (
     metadata,
     resolve_database_url,
 )
+
+db_url = store_fixtures.db_url  # fixtures: a fresh lab book URL / open lab book, per backend
+labbook = store_fixtures.labbook
 
 
 def _stored(labbook, **overrides):
@@ -60,7 +64,12 @@ def test_create_and_get(labbook):
     session = _stored(labbook)
     stored = labbook.get_session(session.session_id)
     assert stored.session == session
-    assert (stored.version, stored.status, stored.return_comment, stored.updated_by) == (1, "draft", "", "ana")
+    assert (stored.version, stored.status, stored.return_comment, stored.updated_by) == (
+        1,
+        "draft",
+        "",
+        "ana",
+    )
     assert labbook.get_raw_file(session.raw_files[0].sha256) == TRACE
 
 
@@ -72,7 +81,12 @@ def test_list_sessions(labbook):
     assert list(table.columns) == SESSION_LIST_COLUMNS
     assert table["session_id"].tolist() == [second.session_id, first.session_id]  # newest first
     row = table.set_index("session_id").loc[second.session_id]
-    assert (row["title"], row["fish"], row["trial_date"], row["temperature_c"]) == ("Trial two", "NW-01", "2031-05-14", 8.0)
+    assert (row["title"], row["fish"], row["trial_date"], row["temperature_c"]) == (
+        "Trial two",
+        "NW-01",
+        "2031-05-14",
+        8.0,
+    )
     assert (row["status"], row["operator"], row["version"]) == ("submitted", "ben", 1)
     assert labbook.list_sessions(status="submitted")["session_id"].tolist() == [second.session_id]
     assert labbook.list_sessions(status="approved").empty
@@ -82,7 +96,9 @@ def test_list_sessions(labbook):
 
 def test_save_makes_a_new_version_and_keeps_the_old(labbook):
     session = _stored(labbook)
-    version = labbook.save_session(_with_mass(session, 160.0), base_version=1, who="ana", reason="re-weighed")
+    version = labbook.save_session(
+        _with_mass(session, 160.0), base_version=1, who="ana", reason="re-weighed"
+    )
     assert version == 2
     stored = labbook.get_session(session.session_id)
     assert stored.version == 2 and stored.session.fish[0].mass_g == 160.0
@@ -99,9 +115,16 @@ def test_save_without_changes_writes_nothing(labbook):
 def test_stale_save_is_refused_and_says_what_changed_and_who(labbook):
     session = _stored(labbook)
     labbook.save_session(_with_mass(session, 160.0), base_version=1, who="ben", reason="re-weighed")
-    labbook.save_session(edited(_with_mass(session, 160.0), notes="cloudy water"), base_version=2, who="cy", reason="note")
+    labbook.save_session(
+        edited(_with_mass(session, 160.0), notes="cloudy water"),
+        base_version=2,
+        who="cy",
+        reason="note",
+    )
     with pytest.raises(ConflictError) as info:
-        labbook.save_session(edited(session, title="Renamed"), base_version=1, who="ana", reason="rename")
+        labbook.save_session(
+            edited(session, title="Renamed"), base_version=1, who="ana", reason="rename"
+        )
     message = str(info.value)
     assert "version 2 by ben: fish.0.mass_g" in message
     assert "version 3 by cy: notes" in message
@@ -129,10 +152,12 @@ def test_two_writers_from_the_same_version(db_url):
             barrier = threading.Barrier(2)
             outcome: dict[int, object] = {}
 
-            def save(i):
+            def save(i, barrier=barrier, outcome=outcome, edits=edits):
                 barrier.wait()
                 try:
-                    outcome[i] = books[i].save_session(edits[i], base_version=1, who=f"writer{i}", reason="race")
+                    outcome[i] = books[i].save_session(
+                        edits[i], base_version=1, who=f"writer{i}", reason="race"
+                    )
                 except ConflictError as exc:
                     outcome[i] = exc
 
@@ -205,7 +230,12 @@ def test_reopen_needs_a_reason_that_goes_in_the_trail(labbook):
     assert labbook.get_session(session.session_id).status == "approved"
     labbook.reopen(session.session_id, who="pi", reason="mass was entered in the wrong unit")
     assert labbook.get_session(session.session_id).status == "draft"
-    assert labbook.save_session(_with_mass(session, 15.2), base_version=1, who="ana", reason="fix unit") == 2
+    assert (
+        labbook.save_session(
+            _with_mass(session, 15.2), base_version=1, who="ana", reason="fix unit"
+        )
+        == 2
+    )
     trail = labbook.audit_trail(session.session_id)
     reopened = trail[trail["action"] == "reopened"].iloc[0]
     assert reopened["reason"] == "mass was entered in the wrong unit" and reopened["who"] == "pi"
@@ -231,7 +261,9 @@ def test_return_with_comment_then_resubmit(labbook):
         labbook.return_session(session.session_id, who="pi", comment="")
     stored = labbook.return_session(session.session_id, who="pi", comment="blank run missing")
     assert (stored.status, stored.return_comment) == ("returned", "blank run missing")
-    labbook.save_session(edited(session, notes="blank added"), base_version=1, who="ana", reason="blank")
+    labbook.save_session(
+        edited(session, notes="blank added"), base_version=1, who="ana", reason="blank"
+    )
     assert labbook.get_session(session.session_id).status == "returned"
     stored = labbook.submit(session.session_id, who="ana")
     assert (stored.status, stored.return_comment) == ("submitted", "")
@@ -253,7 +285,9 @@ def test_wrong_transitions(labbook):
 def test_saving_a_submitted_session_takes_it_back_to_draft(labbook):
     session = _stored(labbook)
     labbook.submit(session.session_id, who="ana")
-    labbook.save_session(edited(session, notes="late note"), base_version=1, who="ana", reason="note")
+    labbook.save_session(
+        edited(session, notes="late note"), base_version=1, who="ana", reason="note"
+    )
     assert labbook.get_session(session.session_id).status == "draft"
     last = labbook.audit_trail(session.session_id).iloc[-1]
     assert {"field": "status", "from": "submitted", "to": "draft"} in last["changes"]
@@ -355,13 +389,18 @@ def test_flatten_and_diff():
 
 json_values = st.recursive(
     st.none() | st.booleans() | st.text(max_size=5) | st.integers(-5, 5),
-    lambda inner: st.lists(inner, max_size=3) | st.dictionaries(st.sampled_from("abc"), inner, max_size=3),
+    lambda inner: (
+        st.lists(inner, max_size=3) | st.dictionaries(st.sampled_from("abc"), inner, max_size=3)
+    ),
     max_leaves=12,
 )
 
 
 @settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(st.dictionaries(st.sampled_from("abcd"), json_values, max_size=4), st.dictionaries(st.sampled_from("abcd"), json_values, max_size=4))
+@given(
+    st.dictionaries(st.sampled_from("abcd"), json_values, max_size=4),
+    st.dictionaries(st.sampled_from("abcd"), json_values, max_size=4),
+)
 def test_diff_reports_exactly_the_changed_leaves(old, new):
     changes = diff_documents(old, new)
     assert (changes == []) == (json.dumps(old, sort_keys=True) == json.dumps(new, sort_keys=True))
@@ -415,13 +454,21 @@ def test_url_resolution_order(tmp_path):
         f"sqlite:///{work / 'labbook' / 'swimlab.sqlite'}",
         "default",
     )
-    (home / ".config" / "swimlab" / "settings.toml").write_text('database_url = "sqlite:///user.db"\n')
+    (home / ".config" / "swimlab" / "settings.toml").write_text(
+        'database_url = "sqlite:///user.db"\n'
+    )
     assert resolve_database_url(None, environ={}, cwd=work, home=home)[0] == "sqlite:///user.db"
     (work / "swimlab.toml").write_text('database_url = "sqlite:///local.db"\n')
     assert resolve_database_url(None, environ={}, cwd=work, home=home)[0] == "sqlite:///local.db"
     env = {"SWIMLAB_DATABASE_URL": "sqlite:///env.db"}
-    assert resolve_database_url(None, environ=env, cwd=work, home=home) == ("sqlite:///env.db", "environment")
-    assert resolve_database_url("sqlite:///arg.db", environ=env, cwd=work, home=home) == ("sqlite:///arg.db", "argument")
+    assert resolve_database_url(None, environ=env, cwd=work, home=home) == (
+        "sqlite:///env.db",
+        "environment",
+    )
+    assert resolve_database_url("sqlite:///arg.db", environ=env, cwd=work, home=home) == (
+        "sqlite:///arg.db",
+        "argument",
+    )
     (work / "swimlab.toml").write_text("database_url = \n")
     with pytest.raises(InputError) as info:
         resolve_database_url(None, environ={}, cwd=work, home=home)
@@ -468,7 +515,9 @@ def test_schema_matches_the_table_definitions(labbook):
     assert labbook.schema_version() == LATEST_SCHEMA == MIGRATIONS[-1].version
     inspector = sa.inspect(labbook._engine)
     for table in metadata.sorted_tables:
-        assert [c["name"] for c in inspector.get_columns(table.name)] == [c.name for c in table.columns], table.name
+        assert [c["name"] for c in inspector.get_columns(table.name)] == [
+            c.name for c in table.columns
+        ], table.name
 
 
 def test_older_schema_is_migrated_and_newer_refused(db_url):
@@ -479,13 +528,20 @@ def test_older_schema_is_migrated_and_newer_refused(db_url):
     partial = LabBook(engine, url=db_url, source="test")
     if partial.dialect == "sqlite":
         engine.dispose()
-        partial = LabBook(LabBook._sqlite_engine(_normalise_url(db_url), create_folder=False), url=db_url, source="test")
+        partial = LabBook(
+            LabBook._sqlite_engine(_normalise_url(db_url), create_folder=False),
+            url=db_url,
+            source="test",
+        )
     assert partial._migrate(upto=1) == 1
     partial.close()
     with LabBook.open(db_url) as opened:
         assert opened.schema_version() == LATEST_SCHEMA
         with opened._engine.begin() as conn:
-            conn.execute(sa.text("INSERT INTO schema_version VALUES (:v, 'from the future', 'x')"), {"v": LATEST_SCHEMA + 1})
+            conn.execute(
+                sa.text("INSERT INTO schema_version VALUES (:v, 'from the future', 'x')"),
+                {"v": LATEST_SCHEMA + 1},
+            )
     with pytest.raises(InputError, match="newer than this swimlab knows"):
         LabBook.open(db_url)
 
@@ -500,7 +556,12 @@ EVENTS_IN_LARGE_SESSION = 1000  # about 140 kB of JSON: a save takes long enough
 
 def _large_session(session_id: str) -> Session:
     events = [
-        {"time_s": float(i), "kind": "note", "fish_id": "NW-01", "description": f"observation {i:05d} " + "x" * 60}
+        {
+            "time_s": float(i),
+            "kind": "note",
+            "fish_id": "NW-01",
+            "description": f"observation {i:05d} " + "x" * 60,
+        }
         for i in range(EVENTS_IN_LARGE_SESSION)
     ]
     return make_session(session_id=session_id, events=events)
@@ -513,8 +574,12 @@ def _save_in_a_loop(url: str, session_id: str, fd: int) -> None:  # runs in the 
     with os.fdopen(fd, "w", buffering=1) as report:
         for i in range(10**6):
             doc["notes"] = f"save {version + 1}"
-            doc["events"][i % EVENTS_IN_LARGE_SESSION]["description"] = f"edited in save {version + 1}"
-            version = book.save_session(Session.from_json_dict(doc), base_version=version, who="saver", reason=f"loop {i}")
+            doc["events"][i % EVENTS_IN_LARGE_SESSION]["description"] = (
+                f"edited in save {version + 1}"
+            )
+            version = book.save_session(
+                Session.from_json_dict(doc), base_version=version, who="saver", reason=f"loop {i}"
+            )
             report.write(f"{version}\n")
 
 
@@ -522,7 +587,10 @@ def _check_consistent(url: str, session_id: str, reported: int) -> int:
     with LabBook.open(url) as book:
         stored = book.get_session(session_id)
         version = stored.version
-        assert reported <= version <= reported + 1, (reported, version)  # the one in flight may have committed
+        assert reported <= version <= reported + 1, (
+            reported,
+            version,
+        )  # the one in flight may have committed
         assert book.session_history(session_id)["version"].tolist() == list(range(1, version + 1))
         trail = book.audit_trail(session_id)
         assert trail["version"].tolist() == list(range(1, version + 1))
@@ -545,7 +613,9 @@ def test_killed_while_saving_loses_nothing(db_url):
     saves = 0
     for _ in range(KILL_ROUNDS):
         read_end, write_end = os.pipe()
-        child = context.Process(target=_save_in_a_loop, args=(db_url, session.session_id, write_end))
+        child = context.Process(
+            target=_save_in_a_loop, args=(db_url, session.session_id, write_end)
+        )
         child.start()
         os.close(write_end)
         with os.fdopen(read_end) as report:

@@ -205,7 +205,10 @@ def schema_path() -> Path:
 
 def schema_text(schema: Mapping[str, Any] | None = None) -> str:
     """The schema as the committed file holds it (2-space indent, sorted keys, final newline)."""
-    return json.dumps(schema or bundle_json_schema(), indent=2, sort_keys=True, ensure_ascii=False) + "\n"
+    return (
+        json.dumps(schema or bundle_json_schema(), indent=2, sort_keys=True, ensure_ascii=False)
+        + "\n"
+    )
 
 
 def write_schema(path: str | os.PathLike | None = None) -> Path:
@@ -242,7 +245,9 @@ def _upgrade_0_to_1(doc: dict[str, Any]) -> tuple[dict[str, Any], list[str]]:
     """
     session = doc.get("session")
     if not isinstance(session, dict):
-        raise InputError("must be an object holding the session", file=SESSION_JSON, field="session")
+        raise InputError(
+            "must be an object holding the session", file=SESSION_JSON, field="session"
+        )
     fish_list = session.get("fish")
     converted = 0
     if isinstance(fish_list, list):
@@ -258,14 +263,22 @@ def _upgrade_0_to_1(doc: dict[str, Any]) -> tuple[dict[str, Any], list[str]]:
                 )
             kg = fish.pop("mass_kg")
             if isinstance(kg, bool) or not isinstance(kg, int | float):
-                raise InputError(f"must be a number of kilograms; got {kg!r}", file=SESSION_JSON, field=where)
+                raise InputError(
+                    f"must be a number of kilograms; got {kg!r}", file=SESSION_JSON, field=where
+                )
             try:
                 fish["mass_g"] = float(Decimal(repr(kg)) * 1000)
             except InvalidOperation as exc:  # pragma: no cover - repr of a float is a decimal
-                raise InputError(f"must be a finite number of kilograms; got {kg!r}", file=SESSION_JSON, field=where) from exc
+                raise InputError(
+                    f"must be a finite number of kilograms; got {kg!r}",
+                    file=SESSION_JSON,
+                    field=where,
+                ) from exc
             converted += 1
     doc["bundle_format_version"] = 1
-    return doc, [f"{SESSION_JSON}: upgraded from bundle layout 0 to 1 (mass_kg → mass_g for {converted} fish)"]
+    return doc, [
+        f"{SESSION_JSON}: upgraded from bundle layout 0 to 1 (mass_kg → mass_g for {converted} fish)"
+    ]
 
 
 UPGRADES: list[tuple[int, Callable[[dict[str, Any]], tuple[dict[str, Any], list[str]]]]] = [
@@ -293,7 +306,9 @@ def upgrade_document(doc: dict[str, Any]) -> tuple[dict[str, Any], int, list[str
     version = doc.get("bundle_format_version")
     if isinstance(version, bool) or not isinstance(version, int):
         raise InputError(
-            f"must be a whole number; got {version!r}", file=SESSION_JSON, field="bundle_format_version"
+            f"must be a whole number; got {version!r}",
+            file=SESSION_JSON,
+            field="bundle_format_version",
         )
     oldest = UPGRADES[0][0] if UPGRADES else BUNDLE_FORMAT_VERSION
     if version > BUNDLE_FORMAT_VERSION:
@@ -375,7 +390,9 @@ def _raw_paths(session: Session) -> dict[str, str]:
     return paths
 
 
-def bundle_files(session: Session, raw_files: Mapping[str, bytes], *, created_at: str | None = None) -> dict[str, bytes]:
+def bundle_files(
+    session: Session, raw_files: Mapping[str, bytes], *, created_at: str | None = None
+) -> dict[str, bytes]:
     """Return every file of the bundle of ``session`` as {path inside the bundle: bytes}.
 
     Raises
@@ -410,7 +427,9 @@ def bundle_files(session: Session, raw_files: Mapping[str, bytes], *, created_at
     for table in TABLES:
         data = table_text(document, table).encode("utf-8")
         files[table.name] = data
-        manifest.append({"path": table.name, "sha256": _sha256(data), "bytes": len(data), "role": "table"})
+        manifest.append(
+            {"path": table.name, "sha256": _sha256(data), "bytes": len(data), "role": "table"}
+        )
     paths = _raw_paths(session)
     roles = {}
     for ref in session.raw_files:
@@ -575,8 +594,14 @@ def _move_into_place(temp: Path, target: Path) -> None:
 
 def _safe_member(name: str, where: str) -> str:
     parts = PurePosixPath(name.replace("\\", "/")).parts
-    if name.startswith(("/", "\\")) or any(part in ("..", "") for part in parts) or ":" in (parts[0] if parts else ""):
-        raise InputError(f"holds an unsafe path {name!r} (absolute or leading outside the bundle)", file=where)
+    if (
+        name.startswith(("/", "\\"))
+        or any(part in ("..", "") for part in parts)
+        or ":" in (parts[0] if parts else "")
+    ):
+        raise InputError(
+            f"holds an unsafe path {name!r} (absolute or leading outside the bundle)", file=where
+        )
     return "/".join(parts)
 
 
@@ -610,7 +635,7 @@ def load_bundle_files(path: str | os.PathLike) -> dict[str, bytes]:
         tops = {name.split("/", 1)[0] for name in files}
         if len(tops) == 1 and f"{next(iter(tops))}/{SESSION_JSON}" in files:
             prefix = next(iter(tops)) + "/"
-            files = {name[len(prefix):]: data for name, data in files.items()}
+            files = {name[len(prefix) :]: data for name, data in files.items()}
     return files
 
 
@@ -626,11 +651,15 @@ def _parse_json(data: bytes) -> dict[str, Any]:
     try:
         doc = json.loads(text, parse_constant=_refuse_constant)
     except json.JSONDecodeError as exc:
-        raise InputError(f"is not valid JSON: {exc.msg} at column {exc.colno}", file=SESSION_JSON, row=exc.lineno) from exc
+        raise InputError(
+            f"is not valid JSON: {exc.msg} at column {exc.colno}", file=SESSION_JSON, row=exc.lineno
+        ) from exc
     except ValueError as exc:
         raise InputError(f"is not valid JSON: {exc}", file=SESSION_JSON) from exc
     if not isinstance(doc, dict):
-        raise InputError(f"must hold a JSON object at the top; got {type(doc).__name__}", file=SESSION_JSON)
+        raise InputError(
+            f"must hold a JSON object at the top; got {type(doc).__name__}", file=SESSION_JSON
+        )
     return doc
 
 
@@ -647,7 +676,11 @@ def _check_schema(doc: dict[str, Any]) -> None:
     first = best_match(errors)
     where = _path_of(first.absolute_path) or "(document)"
     others = sorted(
-        {f"{_path_of(e.absolute_path) or '(document)'}: {e.message}" for e in errors if e is not first}
+        {
+            f"{_path_of(e.absolute_path) or '(document)'}: {e.message}"
+            for e in errors
+            if e is not first
+        }
     )
     more = f" (also: {'; '.join(others[:4])}{'; …' if len(others) > 4 else ''})" if others else ""
     raise InputError(f"{first.message}{more}", file=SESSION_JSON, field=where)
@@ -690,7 +723,9 @@ def check_table(name: str, data: bytes, session_document: Mapping[str, Any]) -> 
     except csv.Error as exc:
         raise InputError(f"is not readable CSV: {exc}", file=name) from exc
     if not rows:
-        raise InputError(f"is empty; expected a header row with columns {table.columns}", file=name, row=1)
+        raise InputError(
+            f"is empty; expected a header row with columns {table.columns}", file=name, row=1
+        )
     header = [cell.strip() for cell in rows[0]]
     missing = [c for c in table.columns if c not in header]
     extra = [c for c in header if c not in table.columns]
@@ -719,7 +754,9 @@ def check_table(name: str, data: bytes, session_document: Mapping[str, Any]) -> 
             raise InputError(
                 f"has {len(row)} cells; the header has {len(header)}", file=name, row=number
             )
-    numbered = [(number, row) for number, row in enumerate(rows[1:], start=2) if any(c.strip() for c in row)]
+    numbered = [
+        (number, row) for number, row in enumerate(rows[1:], start=2) if any(c.strip() for c in row)
+    ]
     if len(body) != len(expected_rows):
         row = numbered[len(expected_rows)][0] if len(body) > len(expected_rows) else len(rows) + 1
         raise InputError(
@@ -781,7 +818,11 @@ def read_bundle(path: str | os.PathLike) -> BundleContents:
         where = f"files.{i}.path"
         name = _safe_member(entry["path"], SESSION_JSON)
         if name in listed or name == SESSION_JSON:
-            raise InputError(f"lists {name!r} twice (or lists session.json itself)", file=SESSION_JSON, field=where)
+            raise InputError(
+                f"lists {name!r} twice (or lists session.json itself)",
+                file=SESSION_JSON,
+                field=where,
+            )
         if name not in files:
             raise InputError(
                 f"is listed in session.json ({where}) but absent from the bundle",
@@ -817,7 +858,9 @@ def read_bundle(path: str | os.PathLike) -> BundleContents:
 
     for name, entry in listed.items():
         if entry["role"] == "table" and not check_table(name, files[name], session_doc):
-            problems.append(f"{name}: re-formatted since it was written; its values agree with session.json")
+            problems.append(
+                f"{name}: re-formatted since it was written; its values agree with session.json"
+            )
     for table in TABLES:
         if table.name not in listed and found_version >= 1:
             problems.append(f"{table.name}: not in the bundle; session.json holds {table.field}")

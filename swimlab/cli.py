@@ -1,0 +1,288 @@
+"""The command line: ``python -m swimlab COMMAND …``.
+
+Commands
+--------
+``import-bundle PATH``
+    Read a session bundle (folder or .zip) and add it to the lab book.
+``export SESSION_ID PATH [--zip]``
+    Write a session from the lab book as a bundle.
+``analyse (BUNDLE_PATH | --session ID) [--out DIR]``
+    Analyse a session and write steps.csv, phases.csv, flags.csv and analysis.json.
+``list [--status S]``
+    List the sessions in the lab book.
+``check-bundle PATH``
+    Check a bundle without importing it.
+``schema [--write]``
+    Print the JSON Schema of a bundle's session.json (or rewrite the committed file).
+
+``--db URL`` chooses the lab book (otherwise as :func:`swimlab.store.resolve_database_url`);
+``--who NAME`` names the person acting, for the audit trail (default: ``SWIMLAB_USER`` or the
+login name). Exit status: 0 on success, 2 on bad input (one line on stderr, no traceback).
+"""
+
+from __future__ import annotations
+
+import argparse
+import getpass
+import json
+import os
+import sys
+from collections.abc import Sequence
+from pathlib import Path
+
+from swimlab import __version__
+from swimlab.errors import SwimlabError
+
+EXIT_OK = 0
+EXIT_BAD_INPUT = 2
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse, with its usage errors on one line like every other error here."""
+
+    def error(self, message: str) -> None:  # type: ignore[override]
+        self.exit(EXIT_BAD_INPUT, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+
+
+def _default_who() -> str:
+    name = os.environ.get("SWIMLAB_USER", "").strip()
+    if name:
+        return name
+    try:
+        return getpass.getuser()
+    except (OSError, KeyError):  # pragma: no cover - no login name on this system
+        return ""
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser of ``python -m swimlab``."""
+    parser = _Parser(
+        prog="swimlab",
+        description="Swim-tunnel respirometry: session bundles, the lab book and analyses.",
+        epilog="Trials with live animals must follow the protocol approved by your institution's "
+        "animal-care committee and local law.",
+    )
+    parser.add_argument("--version", action="version", version=f"swimlab {__version__}")
+    parser.add_argument(
+        "--db",
+        metavar="URL",
+        help="lab book database URL (default: SWIMLAB_DATABASE_URL, then swimlab.toml, "
+        "then ./labbook/swimlab.sqlite)",
+    )
+    parser.add_argument(
+        "--who", metavar="NAME", default=None, help="person acting, for the audit trail"
+    )
+    commands = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    commands.required = True
+
+    cmd = commands.add_parser(
+        "import-bundle",
+        help="add a session bundle to the lab book",
+        description="Read a session bundle (folder or .zip), check it, and add "
+        "the session and its raw files to the lab book as version 1.",
+    )
+    cmd.add_argument("path", metavar="PATH", help="bundle folder or .zip")
+    cmd.set_defaults(run=_import_bundle)
+
+    cmd = commands.add_parser(
+        "export",
+        help="write a session from the lab book as a bundle",
+        description="Write the current version of a session, with its raw "
+        "files, as a bundle folder (or .zip with --zip).",
+    )
+    cmd.add_argument("session_id", metavar="SESSION_ID")
+    cmd.add_argument("path", metavar="PATH", help="bundle folder (or .zip) to create")
+    cmd.add_argument("--zip", action="store_true", help="write one .zip file instead of a folder")
+    cmd.add_argument("--overwrite", action="store_true", help="replace an existing bundle at PATH")
+    cmd.set_defaults(run=_export)
+
+    cmd = commands.add_parser(
+        "analyse",
+        help="analyse a session and write its tables",
+        description="Analyse a session from a bundle or from the lab book; "
+        "write steps.csv, phases.csv, flags.csv and analysis.json into DIR "
+        "and print a short summary.",
+    )
+    source = cmd.add_mutually_exclusive_group(required=True)
+    source.add_argument("bundle", metavar="BUNDLE_PATH", nargs="?", help="bundle folder or .zip")
+    source.add_argument("--session", metavar="ID", help="a session in the lab book")
+    cmd.add_argument(
+        "--out", metavar="DIR", help="output folder (default: ./analysis-<session id>)"
+    )
+    cmd.set_defaults(run=_analyse)
+
+    cmd = commands.add_parser(
+        "list",
+        help="list the sessions in the lab book",
+        description="List the sessions in the lab book, most recently changed first.",
+    )
+    from swimlab.session import STATUSES
+
+    cmd.add_argument("--status", choices=STATUSES, help="only sessions with this status")
+    cmd.set_defaults(run=_list)
+
+    cmd = commands.add_parser(
+        "check-bundle",
+        help="check a bundle without importing it",
+        description="Read and check a bundle; report what was found.",
+    )
+    cmd.add_argument("path", metavar="PATH", help="bundle folder or .zip")
+    cmd.set_defaults(run=_check_bundle)
+
+    cmd = commands.add_parser(
+        "schema",
+        help="print the JSON Schema of session.json",
+        description="Print the JSON Schema (draft 2020-12) of a bundle's "
+        "session.json, generated from the session model.",
+    )
+    cmd.add_argument(
+        "--write", action="store_true", help="rewrite the schema file committed inside the package"
+    )
+    cmd.set_defaults(run=_schema)
+    return parser
+
+
+def _who(args: argparse.Namespace) -> str:
+    return args.who if args.who is not None else _default_who()
+
+
+def _open_book(args: argparse.Namespace):
+    from swimlab.store import LabBook
+
+    return LabBook.open(args.db)
+
+
+def _import_bundle(args: argparse.Namespace) -> int:
+    from swimlab.io.bundle import read_bundle
+
+    contents = read_bundle(args.path)
+    with _open_book(args) as book:
+        version = book.create_session(
+            contents.session,
+            contents.raw_files,
+            who=_who(args),
+            reason=f"imported from bundle {Path(args.path).name}",
+        )
+    for note in contents.problems:
+        print(f"note: {note}")
+    session = contents.session
+    print(f"imported session {session.session_id} ({session.title}) as version {version}")
+    return EXIT_OK
+
+
+def _export(args: argparse.Namespace) -> int:
+    from swimlab.io.bundle import write_bundle
+
+    with _open_book(args) as book:
+        stored = book.get_session(args.session_id)
+        raw = book.raw_files_of(stored.session)
+    path = write_bundle(stored.session, raw, args.path, as_zip=args.zip, overwrite=args.overwrite)
+    print(f"wrote session {args.session_id} version {stored.version} ({stored.status}) to {path}")
+    return EXIT_OK
+
+
+def _analyse(args: argparse.Namespace) -> int:
+    lab_settings = None
+    if args.session:
+        with _open_book(args) as book:
+            stored = book.get_session(args.session)
+            raw = book.raw_files_of(stored.session)
+            lab_settings = book.get_lab_setting_overrides()
+        session = stored.session
+    else:
+        from swimlab.io.bundle import read_bundle
+
+        contents = read_bundle(args.bundle)
+        session, raw = contents.session, contents.raw_files
+        for note in contents.problems:
+            print(f"note: {note}")
+    from swimlab.analysis import analyse  # the science stack is loaded only when needed
+
+    result = analyse(session, raw, lab_settings=lab_settings)
+    out = Path(args.out) if args.out else Path(f"analysis-{session.session_id}")
+    files = {
+        "steps.csv": result.steps.to_csv(index=False).encode("utf-8"),
+        "phases.csv": result.phases.to_csv(index=False).encode("utf-8"),
+        "flags.csv": result.flags.to_csv(index=False).encode("utf-8"),
+        "analysis.json": (
+            json.dumps(result.to_json_dict(), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+        ).encode("utf-8"),
+    }
+    from swimlab.io.bundle import _atomic_write_bytes
+
+    out.mkdir(parents=True, exist_ok=True)
+    for name, data in files.items():
+        _atomic_write_bytes(out / name, data)
+    flags = result.flags
+    counts = ""
+    if len(flags) and "severity" in flags:
+        by = flags["severity"].value_counts()
+        counts = (
+            " ("
+            + ", ".join(f"{int(by[s])} {s}" for s in ("invalid", "warning", "info") if s in by)
+            + ")"
+        )
+    print(
+        f"{session.title} [{session.session_id}]: {len(result.phases)} phases, "
+        f"{len(result.steps)} steps, {len(flags)} flags{counts}"
+    )
+    print(f"wrote {', '.join(files)} to {out}")
+    return EXIT_OK
+
+
+def _list(args: argparse.Namespace) -> int:
+    with _open_book(args) as book:
+        table = book.list_sessions(status=args.status)
+    if table.empty:
+        print(
+            "no sessions"
+            + (f" with status {args.status!r}" if args.status else "")
+            + f" in {book.url}"
+        )
+        return EXIT_OK
+    shown = table.assign(updated_at=table["updated_at"].str.slice(0, 19).str.replace("T", " "))
+    print(shown.to_string(index=False))
+    return EXIT_OK
+
+
+def _check_bundle(args: argparse.Namespace) -> int:
+    from swimlab.io.bundle import read_bundle
+
+    contents = read_bundle(args.path)
+    for note in contents.problems:
+        print(f"note: {note}")
+    session = contents.session
+    print(
+        f"ok: session {session.session_id} ({session.title}), bundle layout "
+        f"{contents.format_version}, {len(contents.raw_files)} raw file(s)"
+    )
+    return EXIT_OK
+
+
+def _schema(args: argparse.Namespace) -> int:
+    from swimlab.io.bundle import schema_text, write_schema
+
+    if args.write:
+        print(f"wrote {write_schema()}")
+    else:
+        sys.stdout.write(schema_text())
+    return EXIT_OK
+
+
+def _one_line(message: str) -> str:
+    return " ".join(str(message).split())
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; return the exit status."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return args.run(args)
+    except SwimlabError as exc:
+        print(f"swimlab: error: {_one_line(str(exc))}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except OSError as exc:
+        where = f" {exc.filename}" if getattr(exc, "filename", None) else ""
+        print(f"swimlab: error:{where}: {_one_line(exc.strerror or str(exc))}", file=sys.stderr)
+        return EXIT_BAD_INPUT
