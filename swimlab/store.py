@@ -571,7 +571,10 @@ class LabBook:
         if parsed.get_backend_name() == "sqlite":
             engine = cls._sqlite_engine(parsed, create_folder=source == "default")
         else:
-            engine = sa.create_engine(parsed, pool_pre_ping=True)
+            try:
+                engine = sa.create_engine(parsed, pool_pre_ping=True)
+            except (ArgumentError, NoSuchModuleError, ImportError) as exc:
+                raise InputError(f"cannot use {shown}: {exc}", field="database_url") from exc
         book = cls(engine, url=shown, source=source)
         try:
             book._migrate()

@@ -522,3 +522,12 @@ def test_read_only_is_not_needed_for_reading(written):
         if item.is_file():
             os.chmod(item, 0o444)
     assert read_bundle(path).session == session
+
+
+def test_the_format_page_lists_the_tables_columns():
+    page = (Path(__file__).resolve().parent.parent / "docs" / "bundle_format.md").read_text(
+        encoding="utf-8"
+    )
+    for table in TABLES:
+        row = f"| `{table.name}` | `{table.field}` | `{', '.join(table.columns)}` |"
+        assert row in page, f"docs/bundle_format.md: update the row for {table.name}: {row}"
