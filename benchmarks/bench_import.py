@@ -2,7 +2,7 @@
 
 Builds in memory a 72-hour, 8-channel, 1 Hz export (259,200 readings; ISO date-times, 8 oxygen
 columns in % air saturation, 8 temperature columns, a flush-pump column), then prints the median
-of five runs of:
+of five interleaved runs of:
 
 - ``pandas.read_csv`` with the C engine,
 - ``pandas.read_csv`` with the pyarrow engine,
@@ -50,13 +50,10 @@ def make_export(hours: float = 72.0, channels: int = 8, seed: int = 20260302) ->
     return pd.DataFrame(columns).to_csv(index=False).encode("utf-8")
 
 
-def median_time(func, runs: int) -> float:
-    times = []
-    for _ in range(runs):
-        start = time.perf_counter()
-        func()
-        times.append(time.perf_counter() - start)
-    return statistics.median(times)
+def timed(func) -> float:
+    start = time.perf_counter()
+    func()
+    return time.perf_counter() - start
 
 
 def main(argv: list[str] | None = None) -> None:
@@ -73,19 +70,31 @@ def main(argv: list[str] | None = None) -> None:
     n_rows = trace.n_rows_read
     assert trace.time_s.size == n_rows and trace.glitches.empty, "benchmark file should be clean"
 
-    c_engine = median_time(lambda: pd.read_csv(io.BytesIO(data), engine="c"), args.runs)
-    arrow_engine = median_time(lambda: pd.read_csv(io.BytesIO(data), engine="pyarrow"), args.runs)
-    given = median_time(lambda: read_logger(data, name=name, mapping=mapping), args.runs)
-    guessed = median_time(lambda: read_logger(data, name=name), args.runs)
-    bare = min(c_engine, arrow_engine)
+    # Rounds interleave the four readers so that each round sees the same machine load; the
+    # ratio is taken within each round, then the median over rounds is reported.
+    readers = {
+        "c": lambda: pd.read_csv(io.BytesIO(data), engine="c"),
+        "arrow": lambda: pd.read_csv(io.BytesIO(data), engine="pyarrow"),
+        "given": lambda: read_logger(data, name=name, mapping=mapping),
+        "guessed": lambda: read_logger(data, name=name),
+    }
+    times: dict[str, list[float]] = {key: [] for key in readers}
+    for _ in range(args.runs):
+        for key, func in readers.items():
+            times[key].append(timed(func))
+    bare = [min(c, a) for c, a in zip(times["c"], times["arrow"], strict=True)]
+    med = {key: statistics.median(values) for key, values in times.items()}
+    ratio = {key: statistics.median(t / b for t, b in zip(times[key], bare, strict=True))
+             for key in ("given", "guessed")}
 
     print(f"file: {n_rows} rows, {args.channels} oxygen + {args.channels} temperature + pump "
-          f"columns, {len(data) / 1e6:.1f} MB; median of {args.runs} runs")
-    print(f"pandas.read_csv, C engine        {c_engine:8.3f} s")
-    print(f"pandas.read_csv, pyarrow engine  {arrow_engine:8.3f} s")
-    print(f"swimlab read_logger (mapping)    {given:8.3f} s   ratio {given / bare:5.2f}")
-    print(f"swimlab read_logger (guessed)    {guessed:8.3f} s   ratio {guessed / bare:5.2f}")
-
+          f"columns, {len(data) / 1e6:.1f} MB; median of {args.runs} interleaved runs")
+    print(f"pandas.read_csv, C engine        {med['c']:8.3f} s")
+    print(f"pandas.read_csv, pyarrow engine  {med['arrow']:8.3f} s")
+    print(f"swimlab read_logger (mapping)    {med['given']:8.3f} s   "
+          f"ratio to the faster bare parse {ratio['given']:5.2f}")
+    print(f"swimlab read_logger (guessed)    {med['guessed']:8.3f} s   "
+          f"ratio to the faster bare parse {ratio['guessed']:5.2f}")
 
 if __name__ == "__main__":
     main()

@@ -126,7 +126,9 @@ TEMPERATURE_RANGE_C = (-3.0, 45.0)
 freezing point of seawater (about -1.9 °C at salinity 35) to above any fish's thermal limit."""
 
 _SAMPLE_BYTES = 256 * 1024
-_SAMPLE_LINES = 600
+_SAMPLE_LINES = 600     # lines of the file's head looked at for its layout
+_TAIL_LINES = 60        # of which the last ones decide the delimiter
+_GUESS_ROWS = 120       # reading lines whose values inform the guesses
 _PREVIEW_ROWS = 20
 
 _NUMBER = re.compile(r"^[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?$")
@@ -488,7 +490,7 @@ def _find_layout(data: bytes, name: str) -> _Layout:
     if not nonblank:
         raise InputError("the file is empty; expected a delimited text export with a line of "
                          "column names and one line per reading", file=name)
-    tail = [lines[i] for i in nonblank[len(nonblank) // 2:]][-_SAMPLE_LINES:]
+    tail = [lines[i] for i in nonblank[len(nonblank) // 2:]][-_TAIL_LINES:]
     delimiter = None
     width = 0
     for d in ("\t", ";", ","):
@@ -499,29 +501,44 @@ def _find_layout(data: bytes, name: str) -> _Layout:
     if delimiter is None:
         raise InputError("found no column delimiter: expected readings in columns separated by "
                          "commas, semicolons or tabs", file=name)
-    parts = {i: _fields(lines[i], delimiter) for i in nonblank}
-    data_idx = [i for i in nonblank if _is_data(parts[i], width)]
-    if not data_idx:
-        raise InputError(f"found no readings: expected lines of numbers separated by "
-                         f"{_delim_name(delimiter)}", file=name)
-    start = data_idx[0]
-    data_set = set(data_idx)
+    parts: dict[int, list[str]] = {}
+    is_data: dict[int, bool] = {}
+
+    def part(i: int) -> list[str]:
+        if i not in parts:
+            parts[i] = _fields(lines[i], delimiter)
+        return parts[i]
+
+    def data_like(i: int) -> bool:
+        if i not in is_data:
+            is_data[i] = _is_data(part(i), width)
+        return is_data[i]
+
+    # The readings start at the first run of five reading-like lines (or fewer at the end).
+    start = None
+    first_data = None
     for pos, i in enumerate(nonblank):
-        if i not in data_set:
+        if not data_like(i):
             continue
-        following = nonblank[pos: pos + 5]
-        if all(j in data_set for j in following):
+        if first_data is None:
+            first_data = i
+        if all(data_like(j) for j in nonblank[pos + 1: pos + 5]):
             start = i
             break
-    headers = [i for i in nonblank if i < start and _is_header(parts[i], width)]
-    if not headers:
+    start = start if start is not None else first_data
+    if start is None:
+        raise InputError(f"found no readings: expected lines of numbers separated by "
+                         f"{_delim_name(delimiter)}", file=name)
+    header = next((i for i in reversed(nonblank) if i < start and _is_header(part(i), width)),
+                  None)
+    if header is None:
         raise InputError(f"found no line of column names before the first reading at line "
                          f"{start + 1}; expected a line of names separated by "
                          f"{_delim_name(delimiter)}", file=name, row=start + 1)
-    header = headers[-1]
-    columns = _column_names(parts[header], width, name, header + 1)
-    rows = [parts[i] for i in nonblank if i > header][:_SAMPLE_LINES]
-    row_lines = [i + 1 for i in nonblank if i > header][:_SAMPLE_LINES]
+    columns = _column_names(part(header), width, name, header + 1)
+    after = [i for i in nonblank if i > header][:_GUESS_ROWS]
+    rows = [part(i) for i in after]
+    row_lines = [i + 1 for i in after]
     decimal = "."
     if delimiter != ",":
         comma = point = 0
@@ -533,8 +550,10 @@ def _find_layout(data: bytes, name: str) -> _Layout:
                     point += "." in p
         if comma > point:
             decimal = ","
+    sampled_all = not truncated and text.count("\n") <= len(lines) and len(after) == len(
+        [i for i in nonblank if i > header])
     return _Layout(encoding, bom, delimiter, decimal, header, columns, rows, row_lines,
-                   truncated or text.count("\n") > len(lines))
+                   not sampled_all)
 
 
 def _delim_name(delimiter: str) -> str:
@@ -653,7 +672,11 @@ def _time_kind(values: list[str]) -> str | None:
     nonempty = [v.strip() for v in values if v.strip()]
     if not nonempty:
         return None
-    for kind, pattern in (("iso", _ISO), ("dmy", _DMY), ("time_of_day", _TOD), ("number", _NUMBER)):
+    patterns = (("iso", _ISO), ("dmy", _DMY), ("time_of_day", _TOD), ("number", _NUMBER))
+    # Try first the patterns that the first values match, then the others.
+    probe = nonempty[:5]
+    order = sorted(patterns, key=lambda kp: not any(kp[1].match(v) for v in probe))
+    for kind, pattern in order:
         if sum(bool(pattern.match(v)) for v in nonempty) >= 0.8 * len(nonempty):
             return kind
     return None
