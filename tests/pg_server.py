@@ -134,7 +134,10 @@ def server_url() -> tuple[str | None, str]:
     """Return ``(url, "")`` of a PostgreSQL server for tests, or ``(None, reason)``."""
     if "url" not in _state:
         if os.environ.get(ENV_URL):
-            _state["url"], _state["why"] = os.environ[ENV_URL], ""
+            from swimlab.store import _normalise_url  # postgresql:// → postgresql+psycopg://
+
+            url = _normalise_url(os.environ[ENV_URL]).render_as_string(hide_password=False)
+            _state["url"], _state["why"] = url, ""
         else:
             url, why = _start()
             _state["url"], _state["why"] = url, why
