@@ -657,14 +657,15 @@ def test_oxygen_ranges_are_300_percent_air_saturation_at_0_c():
 
     Solubility: Garcia & Gordon (1992) fit of Benson & Krause (1984), through
     ``gsw.O2sol_SP_pt``; water vapour pressure: IAPWS-IF97 saturation pressure through
-    ``iapws.IAPWS97``; O2 mole fraction in dry air 0.20946 (Glueckauf 1951, from memory);
-    molar mass of O2 31.998 g/mol (IUPAC). The limits are rounded up by less than 5 %.
+    ``iapws.IAPWS97``; density of pure water: IAPWS-95 through ``iapws.IAPWS95``; O2 mole
+    fraction in dry air 0.20946 (Glueckauf 1951, from memory); molar mass of O2 31.998 g/mol
+    (IUPAC, from memory). The limits are rounded up by less than 5 %.
     """
     gsw = pytest.importorskip("gsw")
     iapws = pytest.importorskip("iapws")
     umol_kg = float(gsw.O2sol_SP_pt(0.0, 0.0))
-    density = 999.84 / 1000.0           # kg/L of pure water at 0 °C (IAPWS-95, from memory)
-    umol_l = umol_kg * density
+    density_kg_l = iapws.IAPWS95(T=273.15, P=0.101325).rho / 1000.0
+    umol_l = umol_kg * density_kg_l
     p_h2o_kpa = iapws.IAPWS97(T=273.15, x=0).P * 1000.0
     po2_kpa = 0.20946 * (101.325 - p_h2o_kpa)
     saturated = {
