@@ -7,7 +7,8 @@ Commands
 ``export SESSION_ID PATH [--zip]``
     Write a session from the lab book as a bundle.
 ``analyse (BUNDLE_PATH | --session ID) [--out DIR]``
-    Analyse a session and write steps.csv, phases.csv, flags.csv and analysis.json.
+    Analyse a session, print its results and write steps.csv, phases.csv (measure phases with MO2),
+    cycles.csv, results.csv, flags.csv and analysis.json.
 ``list [--status S]``
     List the sessions in the lab book.
 ``check-bundle PATH``
@@ -100,7 +101,7 @@ def build_parser() -> argparse.ArgumentParser:
         "analyse",
         help="analyse a session and write its tables",
         description="Analyse a session from a bundle or from the lab book; "
-        "write steps.csv, phases.csv, flags.csv and analysis.json into DIR "
+        "write steps.csv, phases.csv, cycles.csv, results.csv, flags.csv and analysis.json into DIR "
         "and print a short summary.",
     )
     source = cmd.add_mutually_exclusive_group(required=True)
@@ -202,7 +203,9 @@ def _analyse(args: argparse.Namespace) -> int:
     out = Path(args.out) if args.out else Path(f"analysis-{session.session_id}")
     files = {
         "steps.csv": result.steps.to_csv(index=False).encode("utf-8"),
-        "phases.csv": result.phases.to_csv(index=False).encode("utf-8"),
+        "phases.csv": result.measure.to_csv(index=False).encode("utf-8"),
+        "cycles.csv": result.phases.to_csv(index=False).encode("utf-8"),
+        "results.csv": result.results.to_csv(index=False).encode("utf-8"),
         "flags.csv": result.flags.to_csv(index=False).encode("utf-8"),
         "analysis.json": (
             json.dumps(result.to_json_dict(), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
@@ -226,8 +229,24 @@ def _analyse(args: argparse.Namespace) -> int:
         f"{session.title} [{session.session_id}]: {len(result.phases)} phases, "
         f"{len(result.steps)} steps, {len(flags)} flags{counts}"
     )
+    for line in _result_lines(result):
+        print(line)
     print(f"wrote {', '.join(files)} to {out}")
     return EXIT_OK
+
+
+def _result_lines(result) -> list[str]:
+    """One line per derived value: quantity, value with unit, 95 % interval, method."""
+    lines = []
+    for row in result.results.itertuples(index=False):
+        if row.value != row.value:  # NaN: nothing to print
+            continue
+        interval = "" if row.ci_low != row.ci_low else f" (95 % CI {row.ci_low:.4g}–{row.ci_high:.4g})"
+        note = f" [{row.note}]" if row.note else ""
+        lines.append(f"  {row.fish_id}  {row.quantity:<13} {row.value:.4g} {row.unit}{interval} — {row.method}{note}")
+    for row in result.flags.itertuples(index=False):
+        lines.append(f"  flag {row.severity}: {row.code} at {row.where or 'session'} — {row.message}")
+    return lines
 
 
 def _list(args: argparse.Namespace) -> int:

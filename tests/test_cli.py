@@ -227,6 +227,11 @@ class _StandInAnalysis:
     def __init__(self, session, raw_files, lab_settings):
         self.steps = pd.DataFrame({"step": [1, 2], "mo2_mg_kg_h": [81.5, 97.25]})
         self.phases = pd.DataFrame({"cycle": [1, 1, 1], "phase": ["flush", "wait", "measure"]})
+        self.measure = pd.DataFrame({"cycle": [1], "mo2_mg_kg_h": [81.5]})
+        self.results = pd.DataFrame(
+            {"fish_id": ["F1"], "quantity": ["ucrit"], "value": [61.25], "unit": ["cm/s"],
+             "method": ["Brett (1964)"], "ci_low": [float("nan")], "ci_high": [float("nan")], "note": [""]}
+        )
         self.flags = pd.DataFrame(
             {"code": ["PHASE_POOR_FIT", "BACKGROUND_MISSING"], "severity": ["invalid", "warning"]}
         )
@@ -240,7 +245,7 @@ class _StandInAnalysis:
         }
 
 
-def test_analyse_writes_the_four_files(capsys, monkeypatch, tmp_path, db, bundle):
+def test_analyse_writes_its_tables(capsys, monkeypatch, tmp_path, db, bundle):
     seen = []
 
     def analyse(session, raw_files, *, lab_settings=None):
@@ -253,14 +258,18 @@ def test_analyse_writes_the_four_files(capsys, monkeypatch, tmp_path, db, bundle
     code, out, err = run(capsys, "analyse", str(path), "--out", str(out_dir))
     assert (code, err) == (0, "")
     assert "3 phases, 2 steps, 2 flags (1 invalid, 1 warning)" in out
+    assert "F1  ucrit         61.25 cm/s — Brett (1964)" in out
     assert sorted(p.name for p in out_dir.iterdir()) == [
         "analysis.json",
+        "cycles.csv",
         "flags.csv",
         "phases.csv",
+        "results.csv",
         "steps.csv",
     ]
     pd.testing.assert_frame_equal(pd.read_csv(out_dir / "steps.csv"), seen[0].steps)
-    pd.testing.assert_frame_equal(pd.read_csv(out_dir / "phases.csv"), seen[0].phases)
+    pd.testing.assert_frame_equal(pd.read_csv(out_dir / "phases.csv"), seen[0].measure)
+    pd.testing.assert_frame_equal(pd.read_csv(out_dir / "cycles.csv"), seen[0].phases)
     pd.testing.assert_frame_equal(pd.read_csv(out_dir / "flags.csv"), seen[0].flags)
     assert json.loads((out_dir / "analysis.json").read_text(encoding="utf-8")) == {
         "session_id": session.session_id,
@@ -298,3 +307,13 @@ def test_analyse_with_the_real_analysis(capsys, tmp_path):
     written = json.loads((out_dir / "analysis.json").read_text(encoding="utf-8"))
     assert written["session_id"] == session.session_id
     assert written == json.loads(json.dumps(expected.to_json_dict()))
+
+
+def test_analyse_prints_the_results_of_a_demo_session(capsys, tmp_path):
+    demo = Path(__file__).resolve().parents[1] / "demo_sessions" / "bw26-t01-clean-ucrit"
+    code, out, err = run(capsys, "analyse", str(demo), "--out", str(tmp_path / "out"))
+    assert (code, err) == (0, "")
+    for quantity in ("ucrit", "smr", "mmr", "aas", "uopt", "cotmin"):
+        assert f"BW26-T01  {quantity} " in out
+    results = pd.read_csv(tmp_path / "out" / "results.csv")
+    assert set(results["quantity"]) >= {"ucrit", "ucrit_set", "smr", "mmr"}
