@@ -245,7 +245,8 @@ def _result_lines(result) -> list[str]:
         note = f" [{row.note}]" if row.note else ""
         lines.append(f"  {row.fish_id}  {row.quantity:<13} {row.value:.4g} {row.unit}{interval} — {row.method}{note}")
     for row in result.flags.itertuples(index=False):
-        lines.append(f"  flag {row.severity}: {row.code} at {row.where or 'session'} — {row.message}")
+        where = getattr(row, "where", "") or "session"
+        lines.append(f"  flag {row.severity}: {row.code} at {where} — {getattr(row, 'message', '')}")
     return lines
 
 
