@@ -737,3 +737,57 @@ def test_time_order_rules_keep_a_strictly_increasing_trace(tmp_path, steps):
     kept_times = trace.time_s + trace.elapsed_start_s
     np.testing.assert_array_equal(kept_times, np.maximum.accumulate(t)[np.r_[True, np.diff(
         np.maximum.accumulate(t)) > 0]])
+
+
+# --- more time and pump spellings ------------------------------------------------------------
+
+
+@pytest.mark.parametrize(("texts", "time_format", "expected_s"), [
+    (["14.03.2026 08:00:00.5", "14.03.2026 08:00:01,25", "14.03.2026 08:00:02"], "dayfirst",
+     [0.0, 0.75, 1.5]),
+    (["3/14/2026 8:00:00 AM", "3/14/2026 1:00:00 PM", "3/14/2026 11:59:59 PM"], "monthfirst",
+     [0.0, 5 * 3600.0, 16 * 3600.0 - 1]),
+    (["14.3.26 8:00", "14.3.26 8:01", "14.3.26 8:03"], "dayfirst", [0.0, 60.0, 180.0]),
+    (["08:00", "08:01", "08:02"], "time_of_day", [0.0, 60.0, 120.0]),
+    (["07:59:59.5", "08:00:00.0", "08:00:00.5"], "time_of_day", [0.0, 0.5, 1.0]),
+    (["11:59:59 PM", "12:00:00 AM", "12:00:01 AM"], "time_of_day", [0.0, 1.0, 2.0]),
+])
+def test_time_spellings(tmp_path, texts, time_format, expected_s):
+    text = _rows(["Time", "O2 [%]"], [[t, "95.0"] for t in texts], ";")
+    trace = read_logger(write(tmp_path, text), name="ts.csv",
+                        mapping=_mapping(time="Time", time_format=time_format, delimiter=";"))
+    # Tolerance: times are exact to the nanosecond; 1e-6 s covers float rounding of seconds.
+    np.testing.assert_allclose(trace.time_s, expected_s, rtol=0, atol=1e-6)
+
+
+def test_a_stray_spelling_of_time_is_still_read(tmp_path):
+    texts = ["14.03.2026 08:00:00", "14.03.2026  08:00:01", "2026-03-14 08:00:02", "x"]
+    text = _rows(["Time", "O2 [%]"], [[t, "95.0"] for t in texts + ["14.03.2026 08:00:03"]])
+    trace = read_logger(write(tmp_path, text), name="st.csv",
+                        mapping=_mapping(time="Time", time_format="dayfirst"))
+    np.testing.assert_array_equal(trace.time_s, [0.0, 1.0, 2.0, 3.0])
+    assert trace.glitches[["line", "kind", "value"]].values.tolist() == [[5, "text_value", "x"]]
+
+
+@pytest.mark.parametrize(("states", "expected"), [
+    (["ON", "On", "OFF", "off"], [1, 1, 0, 0]),
+    (["true", "TRUE", "False", "false"], [1, 1, 0, 0]),
+    (["1", "1", "0", "0"], [1, 1, 0, 0]),
+    (["yes", "?", "no", "no"], [1, 1, 0, 0]),     # '?' is text: the previous state is used
+])
+def test_pump_states(tmp_path, states, expected):
+    rows = [[str(k), "95.0", s] for k, s in enumerate(states)]
+    trace = read_logger(write(tmp_path, _rows(["Time [s]", "O2 [%]", "Pump"], rows)),
+                        name="pump.csv", mapping=_mapping(pump="Pump"))
+    np.testing.assert_array_equal(trace.pump, np.array(expected, dtype=bool))
+    assert trace.pump.dtype == bool
+    kinds = trace.glitches["kind"].tolist()
+    assert kinds == (["text_value"] if "?" in states else [])
+
+
+def test_pump_column_without_states_is_refused(tmp_path):
+    rows = [[str(k), "95.0", "run"] for k in range(4)]
+    with pytest.raises(InputError, match="no on/off states") as info:
+        read_logger(write(tmp_path, _rows(["Time [s]", "O2 [%]", "Pump"], rows)),
+                    name="p.csv", mapping=_mapping(pump="Pump"))
+    assert info.value.column == "Pump"

@@ -1161,68 +1161,103 @@ def _time_seconds(arr: pa.ChunkedArray, mapping: ColumnMapping) -> tuple[Any, ..
                 None, "an ISO 8601 date-time")
     strings = pc.utf8_trim_whitespace(arr)
     empty = pc.fill_null(pc.equal(pc.utf8_length(strings), 0), True).to_numpy(zero_copy_only=False)
-    series = pd.Series(strings.to_numpy(zero_copy_only=False), dtype=object)
-    if fmt == "time_of_day":
-        first = _first_text(series, empty)
-        m = _TOD.match(first) if first else None
-        if m and m.group(5):
-            parsed = pd.to_datetime(series, format="%I:%M:%S %p" if m.group(3) else "%I:%M %p",
-                                    errors="coerce")
-            delta = parsed - parsed.dt.normalize()
-        else:
-            if m and m.group(3) is None:
-                series = series + ":00"
-            delta = pd.to_timedelta(series.str.replace(",", ".", regex=False), errors="coerce")
-        seconds = delta.dt.total_seconds().to_numpy(dtype=float, na_value=np.nan)
-        text = np.isnan(seconds) & ~empty
-        return (seconds, ("time_of_day", None), empty, text, lambda idx: list(series.iloc[idx]),
-                "a clock time of day such as 08:00:00")
+
+    def text_of(idx: np.ndarray) -> list[str]:
+        return [str(v) for v in arr.take(pa.array(idx, type=pa.int64())).to_pylist()]
+
+    nonempty = np.flatnonzero(~empty)
+    first = str(strings[int(nonempty[0])].as_py()) if nonempty.size else ""
     if fmt == "iso":
+        series = pd.Series(strings.to_numpy(zero_copy_only=False), dtype=object)
         aware = bool(series.str.contains(r"(?:Z|[+-]\d{2}:?\d{2})\s*$", regex=True, na=False).any())
         parsed = pd.to_datetime(series, format="ISO8601", errors="coerce", utc=aware)
-        expected = "an ISO 8601 date-time such as 2026-03-02 08:00:00"
-    else:
-        first = _first_text(series, empty)
-        parsed = _parse_dmy(series, first, fmt)
-        expected = ("a day-first date-time such as 02.03.2026 08:00:00" if fmt == "dayfirst"
-                    else "a month-first date-time such as 03/02/2026 08:00:00")
-    tz = getattr(parsed.dt, "tz", None)
-    if tz is not None:
-        parsed = parsed.dt.tz_convert("UTC").dt.tz_localize(None)
-    ns = parsed.to_numpy(dtype="datetime64[ns]").view(np.int64)
-    bad = ns == np.iinfo(np.int64).min
-    text = bad & ~empty
-    return (_ns_to_seconds(ns, bad), ("clock", ns, bad, tz), empty, text,
-            lambda idx: list(series.iloc[idx]), expected)
+        tz = getattr(parsed.dt, "tz", None)
+        if tz is not None:
+            parsed = parsed.dt.tz_convert("UTC").dt.tz_localize(None)
+        ns = parsed.to_numpy(dtype="datetime64[ns]").view(np.int64)
+        bad = ns == _NAT
+        return (_ns_to_seconds(ns, bad), ("clock", ns, bad, tz), empty, bad & ~empty, text_of,
+                "an ISO 8601 date-time such as 2026-03-14 08:00:00")
+    ns = _strptime_ns(strings, _strptime_format(first, fmt))
+    failed = np.flatnonzero((ns == _NAT) & ~empty)
+    if failed.size:
+        # Values the one format did not read (other spacing, hours past 24, ...): parse each.
+        ns[failed] = _parse_each(strings.take(pa.array(failed)), fmt)
+    bad = ns == _NAT
+    if fmt == "time_of_day":
+        seconds = (ns - _NS_1900).astype(float) / 1e9
+        seconds[bad] = np.nan
+        return (seconds, ("time_of_day", None), empty, bad & ~empty, text_of,
+                "a clock time of day such as 08:00:00")
+    expected = ("a day-first date-time such as 14.03.2026 08:00:00" if fmt == "dayfirst"
+                else "a month-first date-time such as 03/14/2026 08:00:00")
+    return (_ns_to_seconds(ns, bad), ("clock", ns, bad, None), empty, bad & ~empty, text_of,
+            expected)
 
 
-def _first_text(series: pd.Series, empty: np.ndarray) -> str:
-    idx = np.flatnonzero(~empty)
-    return str(series.iloc[idx[0]]) if idx.size else ""
+_NAT = np.iinfo(np.int64).min
+_NS_1900 = int(np.datetime64("1900-01-01T00:00:00", "ns").view(np.int64))
+_FRACTION = r"[.,]\d+\s*(?:[AaPp][Mm])?\s*$"
 
 
-def _parse_dmy(series: pd.Series, first: str, fmt: str) -> pd.Series:
+def _strptime_format(first: str, fmt: str) -> tuple[str, bool] | None:
+    """A strptime format for values written like ``first`` (without the fraction of a second),
+    and whether it reads seconds; None when ``first`` is not in ``fmt`` at all."""
+    if fmt == "time_of_day":
+        m = _TOD.match(first)
+        if m is None:
+            return None
+        seconds, ampm = m.group(3), m.group(5)
+        clock = ("%I" if ampm else "%H") + ":%M" + (":%S" if seconds else "")
+        return clock + (" %p" if ampm else ""), seconds is not None
     m = _DMY.match(first)
     if m is None:
-        return pd.to_datetime(series, dayfirst=fmt == "dayfirst", format="mixed", errors="coerce")
+        return None
     sep = m.group(2)
     year = "%Y" if len(m.group(4)) == 4 else "%y"
     date = f"%d{sep}%m{sep}{year}" if fmt == "dayfirst" else f"%m{sep}%d{sep}{year}"
     if m.group(5) is None:
-        form = date
-    else:
-        hour = "%I" if m.group(9) else "%H"
-        clock = f"{hour}:%M" + (":%S" if m.group(7) else "") + (".%f" if m.group(8) else "")
-        form = f"{date} {clock}" + (" %p" if m.group(9) else "")
-    text = series.str.replace(r"\s+", " ", regex=True)
-    if m.group(8):
-        text = text.str.replace(",", ".", regex=False)
-    parsed = pd.to_datetime(text, format=form, errors="coerce")
-    failed = parsed.isna() & text.notna() & (text.str.len() > 0)
-    if failed.any():
-        parsed[failed] = pd.to_datetime(text[failed], dayfirst=fmt == "dayfirst", format="mixed",
-                                        errors="coerce")
-    return parsed
+        return date, False
+    ampm = m.group(9)
+    clock = ("%I" if ampm else "%H") + ":%M" + (":%S" if m.group(7) else "")
+    return f"{date} {clock}" + (" %p" if ampm else ""), m.group(7) is not None
+
+
+def _strptime_ns(strings: pa.ChunkedArray, form: tuple[str, bool] | None) -> np.ndarray:
+    """Parse with one format, vectorised; int64 nanoseconds, NaT where a value did not read."""
+    if form is None:
+        return np.full(len(strings), _NAT, dtype=np.int64)
+    fmt, has_seconds = form
+    work = strings
+    fraction = None
+    if has_seconds and pc.any(pc.match_substring_regex(strings, _FRACTION)).as_py():
+        parts = pc.extract_regex(strings, r"^(?P<a>.*?)(?P<f>[.,]\d+)?(?P<b>\s*(?:[AaPp][Mm])?\s*)$")
+        head, frac, tail = (pc.struct_field(parts, [k]) for k in range(3))
+        work = pc.binary_join_element_wise(head, tail, "")
+        frac = pc.replace_substring(frac, ",", ".")
+        frac = pc.binary_join_element_wise(pa.scalar("0"), frac, "")
+        fraction = _to_numpy(pc.cast(pc.if_else(pc.equal(frac, "0"), "0.0", frac), pa.float64()))
+    stamps = pc.strptime(work, format=fmt, unit="ns", error_is_null=True)
+    ns = _to_numpy(stamps).astype("datetime64[ns]", copy=False).view(np.int64)
+    if fraction is not None:
+        ok = (ns != _NAT) & np.isfinite(fraction)
+        ns[ok] += np.round(fraction[ok] * 1e9).astype(np.int64)
+    return ns
+
+
+def _parse_each(strings: pa.ChunkedArray | pa.Array, fmt: str) -> np.ndarray:
+    """Slow path for the few values one format did not read; int64 ns, NaT where unreadable."""
+    series = pd.Series(strings.to_pylist(), dtype=object).str.replace(r"\s+", " ", regex=True)
+    series = series.str.replace(",", ".", regex=False)
+    if fmt == "time_of_day":
+        text = series.where(~series.str.fullmatch(r"\d{1,2}:\d{2}", na=False), series + ":00")
+        delta = pd.to_timedelta(text, errors="coerce")
+        out = delta.to_numpy(dtype="timedelta64[ns]").view(np.int64).copy()
+        good = out != _NAT
+        out[good] += _NS_1900
+        return out
+    parsed = pd.to_datetime(series, dayfirst=fmt == "dayfirst", format="mixed", errors="coerce")
+    return parsed.to_numpy(dtype="datetime64[ns]").view(np.int64)
 
 
 def _ns_to_seconds(ns: np.ndarray, bad: np.ndarray) -> np.ndarray:
