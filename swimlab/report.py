@@ -732,7 +732,7 @@ def _m_background(f: _Facts) -> str:
 def _m_slopes(f: _Facts) -> str:
     st = f.settings
     text = ("The oxygen slope of each measure phase was fitted by ordinary least squares. A phase was accepted when "
-            f"the fit's R² was at least {format_entered(st.r2_min)}, the phase held at least {st.min_points_per_phase} "
+            f"the fit's R² was at least {format_entered(st.r2_min)}, the phase held at least {format_entered(st.min_points_per_phase)} "
             f"readings and the slope's standard error was at most {format_entered(st.slope_relative_se_max * 100, '%')} "
             f"of the slope. Phases whose residual standard deviation exceeded {format_entered(st.noise_ratio_max)} times the "
             "sensor noise, whose decline was curved, or whose temperature changed by more than "
@@ -992,7 +992,7 @@ def reporting_checklist(session: Session, analysis: Any) -> pd.DataFrame:
         + ("" if st.reference_mass_kg is None else f", scaled to {format_entered(st.reference_mass_kg, 'kg')} with b = {st.mass_exponent:g}"),
         "settings.fish_density_kg_m3, settings.reference_mass_kg, settings.mass_exponent")
     add(KILLEN, "K20", "Analysis", "Criteria for accepting slopes (e.g. R² threshold)", "stated",
-        f"R² ≥ {st.r2_min:g}, ≥ {st.min_points_per_phase} readings, SE ≤ {st.slope_relative_se_max * 100:g} % of slope",
+        f"R² ≥ {st.r2_min:g}, ≥ {format_entered(st.min_points_per_phase)} readings, SE ≤ {st.slope_relative_se_max * 100:g} % of slope",
         "settings.r2_min, settings.min_points_per_phase, settings.slope_relative_se_max")
     smr_rows = f.results[f.results["quantity"] == "smr"] if not f.results.empty else f.results
     add(KILLEN, "K21", "Analysis", "How SMR was estimated",
@@ -1059,7 +1059,7 @@ def reporting_checklist(session: Session, analysis: Any) -> pd.DataFrame:
 
     # --- ARRIVE 2.0 --------------------------------------------------------------------------------
     add(ARRIVE, "3a", "Inclusion and exclusion criteria", "Criteria for including and excluding animals and data points",
-        "stated", f"slope rules (R² ≥ {st.r2_min:g}, ≥ {st.min_points_per_phase} readings, SE ≤ {st.slope_relative_se_max * 100:g} %) "
+        "stated", f"slope rules (R² ≥ {st.r2_min:g}, ≥ {format_entered(st.min_points_per_phase)} readings, SE ≤ {st.slope_relative_se_max * 100:g} %) "
         "set as lab settings before analysis; phase exclusions by a person with reasons",
         "settings, exclusions[]")
     reasons = f.rejection_reasons()
@@ -1169,7 +1169,11 @@ def _status_dict(status: Any) -> dict[str, Any]:
     if isinstance(status, Mapping):
         return dict(status)
     data = {k: getattr(status, k) for k in ("status", "by", "at", "comment") if hasattr(status, k)}
-    if not data:
+    # the lab book's StoredSession: status with the last change's person and time
+    for source, target in (("updated_by", "last_by"), ("updated_at", "last_at"), ("return_comment", "comment")):
+        if getattr(status, source, None):
+            data.setdefault(target, getattr(status, source))
+    if "status" not in data:
         raise InputError(f"status must be a word, a mapping or a record with .status; got {type(status).__name__}",
                          field="status")
     return data
@@ -1190,6 +1194,9 @@ def _approval_blocks(session: Session, status: Any, audit: pd.DataFrame | None) 
             line += f", by {by}"
         if at:
             line += f", at {_when(at)}"
+        if st.get("last_by") or st.get("last_at"):
+            line += (" (last change" + (f" by {st['last_by']}" if st.get("last_by") else "")
+                     + (f" at {_when(st['last_at'])}" if st.get("last_at") else "") + ")")
         if st.get("comment"):
             line += f" — “{st['comment']}”"
         style = "info" if word == "approved" else "warning"
@@ -1372,14 +1379,45 @@ def _list(entries: Sequence[str], style: str = "") -> dict:
 
 @dataclass
 class ReportFigure:
-    """One figure of a report: a plotly figure (or why none was built) and its caption."""
+    """One figure of a report and its caption; the plotly figure is built when first asked for.
+
+    :attr:`figure` is the print-ready plotly figure, or None when it could not be built; then
+    :attr:`error` says why.
+    """
 
     name: str
     label: str
     caption: str
-    figure: Any = None
-    error: str | None = None
+    builder: Any = field(default=None, repr=False)
     height_px: int = 360
+    _built: bool = field(default=False, repr=False)
+    _figure: Any = field(default=None, repr=False)
+    _error: str | None = field(default=None, repr=False)
+
+    def _ensure(self) -> None:
+        if self._built:
+            return
+        self._built = True
+        try:
+            fig = self.builder() if self.builder is not None else None
+        except Exception as exc:  # noqa: BLE001 — a figure that cannot be built is shown as a box saying why
+            self._error = f"the figure could not be built ({type(exc).__name__}: {exc})"
+            return
+        if fig is None:
+            self._error = "there are no data to draw"
+            return
+        _print_axis_titles(fig)
+        self._figure = _for_print(fig, self.height_px)
+
+    @property
+    def figure(self) -> Any:
+        self._ensure()
+        return self._figure
+
+    @property
+    def error(self) -> str | None:
+        self._ensure()
+        return self._error
 
 
 def _for_print(fig: Any, height: int) -> Any:
@@ -1411,14 +1449,7 @@ def _print_axis_titles(fig: Any) -> None:
 
 
 def _build(name: str, label: str, caption: str, builder, height: int) -> ReportFigure:
-    try:
-        fig = builder()
-    except Exception as exc:  # noqa: BLE001 — a figure that cannot be built is shown as a box saying why
-        return ReportFigure(name, label, caption, None, f"the figure could not be built ({type(exc).__name__}: {exc})", height)
-    if fig is None:
-        return ReportFigure(name, label, caption, None, "there are no data to draw", height)
-    _print_axis_titles(fig)
-    return ReportFigure(name, label, caption, _for_print(fig, height), None, height)
+    return ReportFigure(name, label, caption, builder, height)
 
 
 def _session_figures(f: _Facts, number_from: int = 1) -> list[ReportFigure]:
@@ -1636,14 +1667,14 @@ class Report:
         """
         size = _page_size(page_size)
         svgs = self.render_figures() if figures else {
-            name: (None, "figures were not rendered for this copy") for name in self.figures}
+            name: (None, "figures were left out of this copy") for name in self.figures}
         sections = []
         for section in self.sections:
             blocks = []
             for block in section["blocks"]:
                 if block["kind"] == "figure":
                     fig = self.figures[block["name"]]
-                    svg, err = svgs.get(fig.name, (None, fig.error))
+                    svg, err = svgs[fig.name]
                     if svg is not None and svg_as_image:
                         svg = _svg_img(svg, fig.caption)
                     blocks.append({**block, "label": fig.label, "caption": fig.caption, "svg": svg, "error": err})
@@ -2011,7 +2042,7 @@ def group_curve_data(items: Sequence[tuple[Session, Any]]) -> pd.DataFrame:
     """Accepted single-phase MO2 against corrected speed for every fish (the group curve's data).
 
     Fish ids are prefixed with their session id so that the same label in two sessions stays two
-    fish. Columns ``fish_id``, ``speed_m_s`` [m/s], ``mo2_mg_kg_h``.
+    fish. Columns ``fish_id``, ``species``, ``speed_m_s`` [m/s], ``mo2_mg_kg_h``.
     """
     parts = []
     for session, analysis in _check_items(items):
@@ -2019,16 +2050,18 @@ def group_curve_data(items: Sequence[tuple[Session, Any]]) -> pd.DataFrame:
         m, s = f.measure, f.steps
         if m.empty or s.empty or "step" not in m:
             continue
+        species = {fish.fish_id: fish.species for fish in session.fish}
         for fid in f.fish_ids:
             own = m[(m["fish_id"].astype(str) == str(fid)) & _bool_col(m, "used", True) & (m["step"] > 0)]
             steps = s[s["fish_id"].astype(str) == str(fid)]
             speed = dict(zip(steps["step"], steps["corrected_speed_cm_s"].fillna(steps["set_speed_cm_s"]) / 100.0, strict=True))
             u = own["step"].map(speed)
-            frame = pd.DataFrame({"fish_id": f"{session.session_id}/{fid}", "speed_m_s": u.to_numpy(dtype=float),
+            frame = pd.DataFrame({"fish_id": f"{session.session_id}/{fid}", "species": species[fid],
+                                  "speed_m_s": u.to_numpy(dtype=float),
                                   "mo2_mg_kg_h": own["mo2_mg_kg_h"].to_numpy(dtype=float)})
             parts.append(frame[np.isfinite(frame["speed_m_s"]) & (frame["mo2_mg_kg_h"] > 0)])
     if not parts:
-        return pd.DataFrame(columns=["fish_id", "speed_m_s", "mo2_mg_kg_h"])
+        return pd.DataFrame(columns=["fish_id", "species", "speed_m_s", "mo2_mg_kg_h"])
     return pd.concat(parts, ignore_index=True)
 
 
@@ -2089,20 +2122,26 @@ def study_report(items: Sequence[tuple[Session, Any]], *, title: str | None = No
     flag_counts = (flags.groupby(["severity", "code"]).agg(sessions=("session_id", "nunique"), flags=("code", "size"))
                    .reset_index() if not flags.empty else pd.DataFrame(columns=["severity", "code", "sessions", "flags"]))
 
-    # group curve
+    # group curves, one per species (a curve across species would not be a population's)
     from swimlab import performance
 
     data = group_curve_data(items)
-    curve, curve_error = None, None
-    try:
-        curve = performance.group_curve(data)
-    except (InputError, ValueError, np.linalg.LinAlgError) as exc:
-        curve_error = str(exc)
+    curves: list[tuple[str, Any, str | None]] = []
     figures: list[ReportFigure] = []
-    if curve is not None:
-        cap = ("Accepted single-phase MO₂ of every fish against blocking-corrected speed, with each fish's curve from "
-               "the mixed-effects model (thin lines) and the population curve (thick line).")
-        figures.append(_build("group_curve", "Figure 1", cap, lambda: _group_figure(data, curve), 360))
+    for species, part in data.groupby(data["species"].replace("", "species not recorded"), sort=True):
+        try:
+            curve, error = performance.group_curve(part[["fish_id", "speed_m_s", "mo2_mg_kg_h"]]), None
+        except (InputError, ValueError, np.linalg.LinAlgError) as exc:
+            curve, error = None, str(exc)
+        curves.append((str(species), curve, error))
+        if curve is not None:
+            n = len(figures) + 1
+            cap = (f"{species}: accepted single-phase MO₂ of every fish against blocking-corrected speed, with each fish's "
+                   "curve from the mixed-effects model (thin lines) and the population curve (thick line).")
+            figures.append(_build(f"group_curve_{n}", f"Figure {n}", cap,
+                                  lambda part=part, curve=curve: _group_figure(part, curve), 360))
+    if data.empty:
+        curves.append(("all fish", None, "no accepted phase at a speed step in any session"))
 
     blocks_summary = []
     temps = [s.water.temperature_c for s, _ in items]
@@ -2110,12 +2149,13 @@ def study_report(items: Sequence[tuple[Session, Any]], *, title: str | None = No
     blocks_summary.append({"kind": "p", "text": (
         f"The study holds {_n(len(items), 'session')} with {_n(len(table), 'fish', 'fish')} "
         f"({_join(sorted({x for x in table['species'] if x})) or 'species not recorded'}), swum at "
-        f"{format_range(min(temps), max(temps), '°C') if len(set(temps)) > 1 else format_quantity(temps[0], '°C')} "
-        f"under {_join([p.lower() for p in protocols])}. Methods of each session are given in its own report; "
-        "settings that differ between sessions are listed in the checklist counts below.")})
+        f"{_entered_range(min(temps), max(temps), '°C') if len(set(temps)) > 1 else format_entered(temps[0], '°C')}, "
+        f"protocol: {_join(protocols)}. The methods of each session are given in its own report.")})
     settings_differ = [name for name in facts[0].settings.to_dict()
                        if len({repr(f.settings.to_dict()[name]) for f in facts}) > 1]
-    if settings_differ:
+    if not settings_differ:
+        blocks_summary.append({"kind": "p", "text": "The same lab settings were used in every session."})
+    else:
         blocks_summary.append(_box("warning", "Settings differ between sessions",
                                    [f"These lab settings were not the same in every session: {', '.join(settings_differ)}. "
                                     "Results depending on them are not strictly comparable."]))
@@ -2144,7 +2184,13 @@ def study_report(items: Sequence[tuple[Session, Any]], *, title: str | None = No
                      ("Unit", lambda r: pretty_unit(r["unit"]), str), ("n", "n_fish", _int_fmt), ("Mean", "mean", _num()),
                      ("SD", "sd", _num(2)), ("CV", "cv", _num(2)), ("Min", "min", _num()), ("Max", "max", _num())],
             "Table 3. Spread between fish."))
-    if curve is not None:
+    n_fig = 0
+    for species, curve, error in curves:
+        results_blocks.append({"kind": "h3", "text": f"Group curve: {species}"})
+        if curve is None:
+            results_blocks.append(_box("warning", "No group curve", [f"No group curve was fitted: {error}"]))
+            continue
+        n_fig += 1
         txt = (f"A population curve MO₂ = a·e^(b·U) was fitted to {_n(curve.n, 'accepted phase')} of "
                f"{_n(curve.n_fish, 'fish', 'fish')} by a linear mixed-effects model on ln MO₂ (Laird & Ware 1982): "
                f"a = {format_quantity(curve.a, 'mg O2 kg-1 h-1')} (95 % CI {format_range(*curve.a_ci95)}), "
@@ -2155,9 +2201,7 @@ def study_report(items: Sequence[tuple[Session, Any]], *, title: str | None = No
         if not curve.converged:
             txt += " The optimiser did not report convergence; the curve is doubtful."
         results_blocks.append({"kind": "p", "text": txt})
-        results_blocks.append({"kind": "figure", "name": "group_curve"})
-    else:
-        results_blocks.append(_box("warning", "Group curve", [f"No group curve was fitted: {curve_error}"]))
+        results_blocks.append({"kind": "figure", "name": f"group_curve_{n_fig}"})
 
     flag_blocks = ([_display(flag_counts, [("Severity", "severity", str), ("Rule", "code", str),
                                            ("Sessions", "sessions", _int_fmt), ("Flags", "flags", _int_fmt)],
@@ -2169,7 +2213,7 @@ def study_report(items: Sequence[tuple[Session, Any]], *, title: str | None = No
         ("Swim-tunnel trials are experiments on live animals. They must follow the protocol approved by the "
          "institution's animal-care committee and local law, and be run by people trained and licensed as those rules "
          "require. The welfare limits recorded in the sessions (e.g. oxygen floor "
-         f"{format_quantity(st.oxygen_floor_pct_air_sat, '%')} air saturation) are lab settings, not approval; the "
+         f"{format_entered(st.oxygen_floor_pct_air_sat, '%')} air saturation) are lab settings, not approval; the "
          "approved protocol and local rules decide, and the numbers in this report do not replace them."),
     ]
     n_adverse = sum(len(f.events("adverse_event", "impingement")) for f in facts)
@@ -2185,14 +2229,17 @@ def study_report(items: Sequence[tuple[Session, Any]], *, title: str | None = No
          "blocks": [_list(REFERENCES.values(), "refs")]},
     ]
     tables = {"study": table, "spread": spread, "group_curve_data": data, "flags": flags, "checklist": counted}
-    if curve is not None:
-        tables["group_curve_per_fish"] = curve.per_fish.copy()
-        tables["group_curve"] = pd.DataFrame([{
-            "a_mg_kg_h": curve.a, "a_ci_low": curve.a_ci95[0], "a_ci_high": curve.a_ci95[1],
-            "b_s_m": curve.b, "b_ci_low": curve.b_ci95[0], "b_ci_high": curve.b_ci95[1],
-            "sd_between_ln_a": curve.sd_between_ln_a, "sd_between_b_s_m": curve.sd_between_b,
-            "sd_residual_ln": curve.sd_residual_ln, "random_slopes": curve.random_slopes,
-            "n_fish": curve.n_fish, "n": curve.n, "converged": curve.converged, "notes": curve.notes}])
+    fitted = [(sp, c) for sp, c, _ in curves if c is not None]
+    tables["group_curve"] = pd.DataFrame([{
+        "species": sp, "a_mg_kg_h": c.a, "a_ci_low": c.a_ci95[0], "a_ci_high": c.a_ci95[1],
+        "b_s_m": c.b, "b_ci_low": c.b_ci95[0], "b_ci_high": c.b_ci95[1],
+        "sd_between_ln_a": c.sd_between_ln_a, "sd_between_b_s_m": c.sd_between_b,
+        "sd_residual_ln": c.sd_residual_ln, "random_slopes": c.random_slopes,
+        "n_fish": c.n_fish, "n": c.n, "converged": c.converged, "notes": c.notes} for sp, c in fitted],
+        columns=["species", "a_mg_kg_h", "a_ci_low", "a_ci_high", "b_s_m", "b_ci_low", "b_ci_high", "sd_between_ln_a",
+                 "sd_between_b_s_m", "sd_residual_ln", "random_slopes", "n_fish", "n", "converged", "notes"])
+    tables["group_curve_per_fish"] = (pd.concat([c.per_fish.assign(species=sp) for sp, c in fitted], ignore_index=True)
+                                      if fitted else pd.DataFrame(columns=["species", "fish_id"]))
     meta = [("Sessions", str(len(items))), ("Fish", str(len(table)))]
     return Report(kind="study", title=title, meta=meta, sections=sections, figures={x.name: x for x in figures},
                   table_data=tables, checklist=counted)
@@ -2204,18 +2251,21 @@ def study_report(items: Sequence[tuple[Session, Any]], *, title: str | None = No
 
 
 def write_report(session: Session, analysis: Any, out_path: str | os.PathLike, *, fmt: str = "html",
-                 status: Any = None, audit: pd.DataFrame | None = None, page_size: str = "A4") -> Path:
+                 status: Any = None, audit: pd.DataFrame | None = None, page_size: str = "A4",
+                 figures: bool = True) -> Path:
     """Write the session's report to ``out_path`` as HTML or PDF; return the path written.
 
     The file is written to a temporary file beside the target and moved into place, so an
     existing report is never left half-written. Parameters as :func:`session_report`; ``fmt``
-    is ``"html"`` or ``"pdf"``, ``page_size`` ``"A4"`` or ``"Letter"``.
+    is ``"html"`` or ``"pdf"``, ``page_size`` ``"A4"`` or ``"Letter"``; ``figures=False`` leaves a
+    box in each figure's place (a quick draft without Chromium).
     """
     if fmt not in FORMATS:
         raise ValueError(f"unknown fmt {fmt!r}; valid choices are {list(FORMATS)}")
     _page_size(page_size)
     report = session_report(session, analysis, status=status, audit=audit)
-    data = report.pdf(page_size=page_size) if fmt == "pdf" else report.html(page_size=page_size).encode("utf-8")
+    data = (report.pdf(page_size=page_size, figures=figures) if fmt == "pdf"
+            else report.html(page_size=page_size, figures=figures).encode("utf-8"))
     return _atomic_write(Path(out_path), data)
 
 
