@@ -598,6 +598,8 @@ def test_mapping_round_trips_through_json(tmp_path):
     restored = ColumnMapping.from_dict(json.loads(json.dumps(mapping.to_dict())))
     assert restored == mapping
     assert restored.to_dict() == mapping.to_dict()
+    assert hash(restored) == hash(mapping)
+    assert restored != ColumnMapping.from_dict({**mapping.to_dict(), "header_line": 0})
 
 
 @pytest.mark.parametrize(("change", "field"), [
@@ -791,3 +793,45 @@ def test_pump_column_without_states_is_refused(tmp_path):
         read_logger(write(tmp_path, _rows(["Time [s]", "O2 [%]", "Pump"], rows)),
                     name="p.csv", mapping=_mapping(pump="Pump"))
     assert info.value.column == "Pump"
+
+
+_TOKENS = ["", "ERR", "-300", "9999", "NaN", "x", "1,5", "1.5", " ", "450", "-1", "on",
+           "2026-03-14 08:00:00", "08:00:00", "14.03.2026 08:00:00", '"q"', "inf"]
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(st.sampled_from(FORMATS), st.sampled_from(TIME_FORMATS), st.sampled_from(ENCODINGS),
+       st.lists(st.tuples(st.integers(0, 29), st.integers(0, 8), st.sampled_from(_TOKENS),
+                          st.sampled_from(["cell", "repeat", "delete", "blank", "swap"])),
+                max_size=6))
+def test_damaged_files_give_a_trace_or_an_input_error(tmp_path, fmt, time_format, encoding, damage):
+    """Whatever is damaged, the reader returns a consistent trace or raises InputError."""
+    delimiter, decimal = fmt
+    lines = make_export(n=30, delimiter=delimiter, decimal=decimal,
+                        time_format=time_format).text.split("\r\n")
+    for row, col, token, kind in damage:
+        i = 5 + row
+        if kind == "cell":
+            parts = lines[i].split(delimiter)
+            parts[col % len(parts)] = token
+            lines[i] = delimiter.join(parts)
+        elif kind == "repeat":
+            lines.insert(i, lines[i])
+        elif kind == "delete":
+            del lines[i]
+        elif kind == "blank":
+            lines.insert(i, "")
+        else:
+            lines[i], lines[i + 1] = lines[i + 1], lines[i]
+    data = write(tmp_path, "\r\n".join(lines), encoding)
+    try:
+        trace = read_logger(data, name="damaged.csv")
+    except InputError as exc:
+        assert exc.file == "damaged.csv"
+        return
+    assert np.all(np.diff(trace.time_s) > 0) and trace.time_s[0] == 0.0
+    assert trace.lines.size == trace.time_s.size and np.all(np.diff(trace.lines) > 0)
+    for values in [*trace.oxygen.values(), *trace.temperature_c.values()]:
+        assert values.shape == trace.time_s.shape
+    assert list(trace.glitches.columns) == list(lg.GLITCH_COLUMNS)
+    assert set(trace.glitches["kind"]) <= set(lg.GLITCH_KINDS)

@@ -20,6 +20,7 @@ from __future__ import annotations
 import codecs
 import csv
 import hashlib
+import json
 import math
 import re
 import threading
@@ -301,6 +302,9 @@ class ColumnMapping:
             if any(isinstance(v, bool) or not math.isfinite(c) for v, c in zip(value, codes, strict=True)):
                 raise bad(name, f"must be a list of finite numbers; got {value!r}")
             object.__setattr__(self, name, codes)
+
+    def __hash__(self) -> int:
+        return hash(json.dumps(self.to_dict(), sort_keys=True, ensure_ascii=False))
 
     def to_dict(self) -> dict[str, Any]:
         """Return the mapping as a JSON-safe dict (lists for the error codes)."""
@@ -914,7 +918,8 @@ class LoggerTrace:
     mapping
         The mapping used (guessed when none was given).
     n_rows_read
-        Reading lines parsed (blank lines not counted).
+        Lines parsed after the column-name line (empty lines included; each one is reported
+        in :attr:`glitches`).
     lines
         1-based line of the file of each kept reading.
     start_time_of_day
@@ -1534,7 +1539,7 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
     if origin[0] == "clock":
         ns = origin[1]
         first_ns = int(ns[kept[0]])
-        stamp = pd.Timestamp(first_ns, unit="ns")
+        stamp = pd.Timestamp(first_ns - first_ns % 1000, unit="ns")  # datetime keeps µs
         if len(origin) > 3 and origin[3] is not None:
             stamp = stamp.tz_localize("UTC")
         start_time = stamp.to_pydatetime()
