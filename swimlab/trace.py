@@ -114,7 +114,7 @@ def _channels(name: str, values: Mapping[str, Any], n: int, *, allow_empty: bool
     out = {}
     for channel, value in values.items():
         arr = _channel_array(name, str(channel), value, n)
-        if not np.isfinite(arr).any():
+        if not (np.isfinite(arr[:64]).any() or np.isfinite(arr).any()):
             raise InputError(
                 f"channel {channel!r} has no finite {name} reading (all {n} are missing); check "
                 f"the column mapping, or leave the channel out", field=f"{name}.{channel}")
@@ -181,16 +181,33 @@ def _table_from_labels(time_s: np.ndarray, label: np.ndarray, cycle: np.ndarray,
     }, columns=PHASE_COLUMNS)
 
 
-def _labels_from_flush(time_s: np.ndarray, flush: np.ndarray, wait_s: float) -> tuple[np.ndarray, np.ndarray]:
+def _table_from_flush(time_s: np.ndarray, flush: np.ndarray, wait_s: float, method: str) -> pd.DataFrame:
+    """Phase table from a per-reading flush mask, working on its runs only."""
     n = flush.size
-    previous = np.concatenate(([False], flush[:-1]))
-    flush_start = flush & ~previous
-    closed_start = ~flush & (previous | (np.arange(n) == 0))
-    cycle = np.cumsum(flush_start) + (0 if flush[0] else 1)
-    last_closing = np.maximum.accumulate(np.where(closed_start, np.arange(n), 0))
-    since_closing = time_s - time_s[last_closing]
-    label = np.where(flush, _FLUSH, np.where(since_closing < wait_s, _WAIT, _MEASURE)).astype(np.int8)
-    return label, cycle
+    edges = np.flatnonzero(flush[1:] != flush[:-1]) + 1
+    starts = np.concatenate(([0], edges))
+    stops = np.concatenate((edges, [n]))
+    is_flush = flush[starts]
+    cycle = np.cumsum(is_flush) + (0 if flush[0] else 1)
+    # a closed run is the wait until wait_s after its first reading, then the measure phase
+    split = np.searchsorted(time_s, time_s[starts] + wait_s, side="left")
+    split = np.where(is_flush, stops, np.clip(split, starts, stops))
+    first_label = np.where(is_flush, _FLUSH, _WAIT)
+    row_start = np.stack((starts, split), axis=1).ravel()
+    row_stop = np.stack((split, stops), axis=1).ravel()
+    row_label = np.stack((first_label, np.full(starts.size, _MEASURE)), axis=1).ravel()
+    row_cycle = np.repeat(cycle, 2)
+    keep = row_stop > row_start
+    row_start, row_stop = row_start[keep], row_stop[keep]
+    return pd.DataFrame({
+        "cycle": row_cycle[keep].astype(np.int64),
+        "phase": _NAMES[row_label[keep]],
+        "start_s": time_s[row_start],
+        "end_s": time_s[row_stop - 1],
+        "i_start": row_start.astype(np.int64),
+        "i_stop": row_stop.astype(np.int64),
+        "method": method,
+    }, columns=PHASE_COLUMNS)
 
 
 def phases_from_pump(time_s: Any, pump: Any, wait_s: float) -> pd.DataFrame:
@@ -233,8 +250,7 @@ def phases_from_pump(time_s: Any, pump: Any, wait_s: float) -> pd.DataFrame:
             raise InputError(f"pump state at reading {i + 1} is {values[i]!r}; expected on/off "
                              f"(True/False or 1/0)", field="pump", row=i + 1)
         flush = values == 1.0
-    label, cycle = _labels_from_flush(t, flush, wait)
-    return _table_from_labels(t, label, cycle, "pump")
+    return _table_from_flush(t, flush, wait, "pump")
 
 
 def phases_from_schedule(time_s: Any, flush_s: float, wait_s: float, measure_s: float,
@@ -368,62 +384,136 @@ def phases_from_shape(time_s: Any, oxygen: Any, wait_s: float, *, min_rise: floa
     np.add.at(marks, starts, 1)
     np.add.at(marks, stops, -1)
     flush = np.cumsum(marks[:-1]) > 0
-    label, cycle = _labels_from_flush(t, flush, wait)
-    return _table_from_labels(t, label, cycle, "shape")
+    return _table_from_flush(t, flush, wait, "shape")
 
 
 # --- segment statistics ---------------------------------------------------------------------
 
 
 class _Segments:
-    """The measure phases of a phase table, gathered into one contiguous index."""
+    """The measure phases of a phase table, gathered into one contiguous index.
 
-    def __init__(self, phases: pd.DataFrame, n: int) -> None:
-        _check_phases(phases, n)
-        measure = phases[phases["phase"].to_numpy() == "measure"]
-        if measure.empty:
+    Readings of the measure phases are gathered (``index``) so that every phase is a contiguous
+    run starting at ``offsets``; sums per phase are one :func:`numpy.add.reduceat`. The time of
+    each gathered reading, centred on its phase's mean time (``tc``), and its powers are shared
+    by every channel.
+    """
+
+    def __init__(self, phases: pd.DataFrame, t: np.ndarray) -> None:
+        _check_phases(phases, t.size)
+        is_measure = phases["phase"].to_numpy() == "measure"
+        if not is_measure.any():
             raise InputError("the phase table has no measure phase", field="phases")
-        self.cycle = measure["cycle"].to_numpy(dtype=np.int64)
-        self.i_start = measure["i_start"].to_numpy(dtype=np.int64)
-        self.i_stop = measure["i_stop"].to_numpy(dtype=np.int64)
+        self.cycle = phases["cycle"].to_numpy(dtype=np.int64)[is_measure]
+        self.i_start = phases["i_start"].to_numpy(dtype=np.int64)[is_measure]
+        self.i_stop = phases["i_stop"].to_numpy(dtype=np.int64)[is_measure]
         self.lengths = self.i_stop - self.i_start
         self.offsets = np.cumsum(self.lengths) - self.lengths
         total = int(self.lengths.sum())
         self.index = np.arange(total, dtype=np.int64) + np.repeat(self.i_start - self.offsets, self.lengths)
-        self.seg = np.repeat(np.arange(self.cycle.size), self.lengths)
         self.size = self.cycle.size
+        self.total = total
+        tg = t[self.index]
+        self.tg = tg
+        self.tmean = self.sum(tg) / self.lengths
+        self.tc = tg - self.spread(self.tmean)
+        self.first_t = t[self.i_start]
+        self.last_t = t[self.i_stop - 1]
+        self._powers: tuple | None = None
 
     def sum(self, x: np.ndarray) -> np.ndarray:
         return np.add.reduceat(x, self.offsets, axis=-1)
 
+    def spread(self, per_phase: np.ndarray) -> np.ndarray:
+        """Repeat a per-phase value for each of the phase's readings."""
+        return np.repeat(per_phase, self.lengths, axis=-1)
 
-def _linear_moments(seg: _Segments, t: np.ndarray, y: np.ndarray) -> dict[str, np.ndarray]:
-    """Centred sums of one trace's measure phases (weighted by finite readings)."""
-    tg = t[seg.index]
-    tc = tg - (seg.sum(tg) / seg.lengths)[seg.seg]
+    def powers(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """tc², Σtc², Σtc³, Σtc⁴ per phase (for channels without missing readings)."""
+        if self._powers is None:
+            tc2 = self.tc * self.tc
+            self._powers = (tc2, self.sum(tc2), self.sum(tc2 * self.tc), self.sum(tc2 * tc2))
+        return self._powers
+
+
+def _moments(seg: _Segments, y: np.ndarray, *, quadratic: bool = True) -> dict[str, np.ndarray]:
+    """Centred sums of one channel's measure phases; missing readings get zero weight."""
     yg = y[seg.index]
-    finite = np.isfinite(yg)
-    if finite.all():
+    sy = seg.sum(yg)
+    if np.isfinite(sy).all():
         n = seg.lengths.astype(float)
-        tbar = np.zeros(seg.size)
-        u = tc
-        ybar = seg.sum(yg) / n
-        v = yg - ybar[seg.seg]
-    else:
-        w = finite.astype(float)
-        y0 = np.where(finite, yg, 0.0)
-        n = seg.sum(w)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            tbar = seg.sum(w * tc) / n
-            ybar = seg.sum(y0) / n
-        tbar0 = np.nan_to_num(tbar)
-        u = (tc - tbar0[seg.seg]) * w
-        v = (y0 - np.nan_to_num(ybar)[seg.seg]) * w
+        ybar = sy / n
+        v = yg
+        v -= seg.spread(ybar)  # yg is a fresh copy: centre it in place
+        tc2, sxx, su3, su4 = seg.powers()
+        buffer = np.multiply(seg.tc, v)
+        out = {"n": n, "tbar": np.zeros(seg.size), "ybar": ybar, "sxx": sxx, "sxy": seg.sum(buffer)}
+        if quadratic:
+            np.multiply(v, v, out=buffer)
+            syy = seg.sum(buffer)
+            np.multiply(tc2, v, out=buffer)
+            out.update(syy=syy, su3=su3, su4=su4, su2y=seg.sum(buffer))
+        return out
+    finite = np.isfinite(yg)
+    w = finite.astype(float)
+    y0 = np.where(finite, yg, 0.0)
+    n = seg.sum(w)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        tbar = seg.sum(w * seg.tc) / n
+        ybar = seg.sum(y0) / n
+    u = (seg.tc - seg.spread(np.nan_to_num(tbar))) * w
+    v = (y0 - seg.spread(np.nan_to_num(ybar))) * w
     u2 = u * u
-    return {
-        "n": n, "tbar": tbar, "ybar": ybar, "u": u, "u2": u2, "v": v,
-        "sxx": seg.sum(u2), "sxy": seg.sum(u * v), "syy": seg.sum(v * v),
-    }
+    out = {"n": n, "tbar": tbar, "ybar": ybar, "sxx": seg.sum(u2), "sxy": seg.sum(u * v)}
+    if quadratic:
+        out.update(syy=seg.sum(v * v), su3=seg.sum(u2 * u), su4=seg.sum(u2 * u2), su2y=seg.sum(u2 * v))
+    return out
+
+
+def _fitted_ends(seg: _Segments, m: dict[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    with np.errstate(invalid="ignore", divide="ignore"):
+        slope = np.where(m["n"] >= 2, m["sxy"] / m["sxx"], np.nan)
+        centre = seg.tmean + np.nan_to_num(m["tbar"])
+        start = m["ybar"] + slope * (seg.first_t - centre)
+        end = m["ybar"] + slope * (seg.last_t - centre)
+    return slope, start, end
+
+
+def _pct_of_fit(seg: _Segments, conc: np.ndarray, pct: np.ndarray, start: np.ndarray,
+                end: np.ndarray) -> np.ndarray:
+    """The lower fitted end of each phase in % air saturation.
+
+    Each fitted end is converted with the ratio % / (mg/L) of the reading at that end, i.e. at
+    that reading's own temperature; where that reading is missing, with the ratio of the
+    phase's sums over readings that have both.
+    """
+    first, last = seg.i_start, seg.i_stop - 1
+    with np.errstate(invalid="ignore", divide="ignore"):
+        r_first = pct[first] / conc[first]
+        r_last = pct[last] / conc[last]
+        lost = ~(np.isfinite(r_first) & np.isfinite(r_last))
+        if lost.any():
+            pg, cg = pct[seg.index], conc[seg.index]
+            both = np.isfinite(pg) & np.isfinite(cg)
+            ratio = seg.sum(np.where(both, pg, 0.0)) / seg.sum(np.where(both, cg, 0.0))
+            r_first = np.where(np.isfinite(r_first), r_first, ratio)
+            r_last = np.where(np.isfinite(r_last), r_last, ratio)
+        return np.fmin(start * r_first, end * r_last)
+
+
+def _temperature_stats(seg: _Segments, temp: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    tg = temp[seg.index]
+    total = seg.sum(tg)
+    if np.isfinite(total).all():
+        mean = total / seg.lengths
+        change = np.maximum.reduceat(tg, seg.offsets) - np.minimum.reduceat(tg, seg.offsets)
+        return mean, change
+    ok = np.isfinite(tg)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = seg.sum(np.where(ok, tg, 0.0)) / seg.sum(ok.astype(float))
+    hi = np.maximum.reduceat(np.where(ok, tg, -np.inf), seg.offsets)
+    lo = np.minimum.reduceat(np.where(ok, tg, np.inf), seg.offsets)
+    return mean, np.where(np.isfinite(hi), hi - lo, np.nan)
 
 
 def fit_slopes(
@@ -468,9 +558,12 @@ def fit_slopes(
     fit's slope from the phase's first to its last reading as a share of |slope|; ``o2_start_mg_l``,
     ``o2_end_mg_l`` and ``o2_min_mg_l``, the fitted line at the phase's first and last reading
     and the lower of the two (from the line, so that one noisy reading does not decide the
-    oxygen floor); ``o2_min_pct_air_sat`` the same from ``oxygen_pct``; ``temperature_mean_c``
+    oxygen floor); ``o2_min_pct_air_sat`` the same in % air saturation, each end converted with
+    the ratio of ``oxygen_pct`` to concentration of the reading at that end; ``temperature_mean_c``
     and ``temperature_change_c`` (highest minus lowest reading in the phase) [°C];
-    ``accepted`` and ``rejected_by`` (rule codes joined by ",", "" when accepted).
+    ``accepted`` and ``rejected_by`` (rule codes joined by ",", "" when accepted). Statistics
+    that need more readings than a phase has (a slope needs 2, its SE and R² 3, the quadratic
+    term 4) are NaN, and such a phase is rejected with PHASE_TOO_FEW_POINTS.
 
     Notes
     -----
@@ -509,109 +602,75 @@ def fit_slopes(
         missing = sorted(set(oxygen) - set(pct))
         if missing:
             raise InputError(f"oxygen_pct lacks channels {missing}", field="oxygen_pct")
-    seg = _Segments(phases, n_read)
-    first_t = t[seg.i_start]
-    last_t = t[seg.i_stop - 1]
-    tmean = seg.sum(t[seg.index]) / seg.lengths
+    seg = _Segments(phases, t)
     min_points = int(settings.min_points_per_phase)
+    duration = seg.last_t - seg.first_t
 
-    tables = []
+    columns: dict[str, list] = {name: [] for name in SLOPE_COLUMNS}
     temp_cache: dict[int, tuple[np.ndarray, np.ndarray]] = {}
-    for channel, y in oxygen.items():
-        m = _linear_moments(seg, t, y)
+    for channel in sorted(oxygen):
+        y = oxygen[channel]
+        m = _moments(seg, y)
         n, sxx, sxy, syy = m["n"], m["sxx"], m["sxy"], m["syy"]
-        u, u2, v = m["u"], m["u2"], m["v"]
-        su3 = seg.sum(u2 * u)
-        su4 = seg.sum(u2 * u2)
-        su2y = seg.sum(u2 * v)
+        slope, o2_start, o2_end = _fitted_ends(seg, m)
         with np.errstate(invalid="ignore", divide="ignore"):
             enough = n >= 3
-            slope = np.where(n >= 2, sxy / sxx, np.nan)
             ss_res = np.clip(syy - slope * sxy, 0.0, None)
-            dof = n - 2
-            s2 = np.where(enough, ss_res / dof, np.nan)
+            s2 = np.where(enough, ss_res / (n - 2), np.nan)
             se = np.sqrt(s2 / sxx)
             r2 = np.where(enough, np.where(syy > 0, sxy * sxy / (sxx * syy), 0.0), np.nan)
             resid_sd = np.sqrt(s2)
             rel_se = se / np.abs(slope)
-            alpha = su3 / sxx
-            beta = sxx / n
-            spp = su4 - alpha * su3 - beta * sxx
-            spy = su2y - alpha * sxy
+            alpha = m["su3"] / sxx
+            spp = m["su4"] - alpha * m["su3"] - sxx * sxx / n
+            spy = m["su2y"] - alpha * sxy
             c = spy / spp
             ss_res2 = np.clip(ss_res - c * spy, 0.0, None)
             s2_quad = np.where(n >= 4, ss_res2 / (n - 3), np.nan)
             curv_t = np.where(s2_quad > 0, c / np.sqrt(s2_quad / spp), np.where(c == 0, 0.0, np.inf * np.sign(c)))
             curv_t = np.where(n >= 4, curv_t, np.nan)
-            curv_change = 2.0 * c * (last_t - first_t) / np.abs(slope)
-            t_centre = tmean + np.nan_to_num(m["tbar"])
-            o2_start = m["ybar"] + slope * (first_t - t_centre)
-            o2_end = m["ybar"] + slope * (last_t - t_centre)
-        o2_min = np.fmin(o2_start, o2_end)
+            curv_change = 2.0 * c * duration / np.abs(slope)
         if pct is not None:
-            mp = _linear_moments(seg, t, pct[channel])
-            with np.errstate(invalid="ignore", divide="ignore"):
-                bp = mp["sxy"] / mp["sxx"]
-                centre_p = tmean + np.nan_to_num(mp["tbar"])
-                pct_min = np.fmin(mp["ybar"] + bp * (first_t - centre_p),
-                                  mp["ybar"] + bp * (last_t - centre_p))
+            pct_min = _pct_of_fit(seg, y, pct[channel], o2_start, o2_end)
         else:
             pct_min = np.full(seg.size, np.nan)
         temp = _temperature_for(temperature_c, channel, n_read)
         if temp is None:
             t_mean = t_change = np.full(seg.size, np.nan)
         else:
-            key = id(temperature_c[channel]) if isinstance(temperature_c, Mapping) and channel in temperature_c else id(temp)
+            key = id(temp) if not isinstance(temperature_c, Mapping) else id(
+                temperature_c.get(channel, next(iter(temperature_c.values()))))
             if key not in temp_cache:
-                tg = temp[seg.index]
-                ok = np.isfinite(tg)
-                with np.errstate(invalid="ignore", divide="ignore"):
-                    mean_t = seg.sum(np.where(ok, tg, 0.0)) / seg.sum(ok.astype(float))
-                hi = np.maximum.reduceat(np.where(ok, tg, -np.inf), seg.offsets)
-                lo = np.minimum.reduceat(np.where(ok, tg, np.inf), seg.offsets)
-                change = np.where(np.isfinite(hi), hi - lo, np.nan)
-                temp_cache[key] = (mean_t, change)
+                temp_cache[key] = _temperature_stats(seg, temp)
             t_mean, t_change = temp_cache[key]
 
         noise_ratio = resid_sd / float(settings.sensor_noise_mg_l)
         too_few = n < max(min_points, 3)
         with np.errstate(invalid="ignore"):
             noisy = ~(rel_se <= settings.slope_relative_se_max)
-            poor = ~(r2 >= settings.r2_min)
-            scatter = ~(noise_ratio <= settings.noise_ratio_max)
-        shape_fail = poor & scatter
+            shape_fail = ~(r2 >= settings.r2_min) & ~(noise_ratio <= settings.noise_ratio_max)
         accepted = ~too_few & ~noisy & ~shape_fail
         codes = np.full(seg.size, "", dtype=object)
-        codes = np.where(~too_few & noisy, "PHASE_NOISY_SLOPE", codes)
-        both = np.where(codes == "", "PHASE_POOR_FIT,PHASE_EXCESS_SCATTER",
-                        codes + ",PHASE_POOR_FIT,PHASE_EXCESS_SCATTER")
-        codes = np.where(~too_few & shape_fail, both, codes)
-        codes = np.where(too_few, "PHASE_TOO_FEW_POINTS", codes)
-        tables.append(pd.DataFrame({
-            "channel": channel,
-            "cycle": seg.cycle,
-            "start_s": first_t,
-            "end_s": last_t,
-            "n_points": n.astype(np.int64),
-            "slope_mg_l_s": slope,
-            "slope_se_mg_l_s": se,
-            "r2": r2,
-            "residual_sd_mg_l": resid_sd,
-            "relative_se": rel_se,
-            "noise_ratio": noise_ratio,
-            "curvature_t": curv_t,
-            "curvature_slope_change": curv_change,
-            "o2_start_mg_l": o2_start,
-            "o2_end_mg_l": o2_end,
-            "o2_min_mg_l": o2_min,
-            "o2_min_pct_air_sat": pct_min,
-            "temperature_mean_c": t_mean,
-            "temperature_change_c": t_change,
-            "accepted": accepted,
-            "rejected_by": codes.astype(str),
-        }, columns=SLOPE_COLUMNS))
-    out = pd.concat(tables, ignore_index=True)
-    return out.sort_values(["channel", "cycle"], kind="stable").reset_index(drop=True)
+        codes[~too_few & noisy] = "PHASE_NOISY_SLOPE"
+        codes[~too_few & noisy & shape_fail] = "PHASE_NOISY_SLOPE,PHASE_POOR_FIT,PHASE_EXCESS_SCATTER"
+        codes[~too_few & ~noisy & shape_fail] = "PHASE_POOR_FIT,PHASE_EXCESS_SCATTER"
+        codes[too_few] = "PHASE_TOO_FEW_POINTS"
+        values = {
+            "channel": np.full(seg.size, channel, dtype=object), "cycle": seg.cycle,
+            "start_s": seg.first_t, "end_s": seg.last_t, "n_points": n.astype(np.int64),
+            "slope_mg_l_s": slope, "slope_se_mg_l_s": se, "r2": r2, "residual_sd_mg_l": resid_sd,
+            "relative_se": rel_se, "noise_ratio": noise_ratio, "curvature_t": curv_t,
+            "curvature_slope_change": curv_change, "o2_start_mg_l": o2_start, "o2_end_mg_l": o2_end,
+            "o2_min_mg_l": np.fmin(o2_start, o2_end), "o2_min_pct_air_sat": pct_min,
+            "temperature_mean_c": t_mean, "temperature_change_c": t_change, "accepted": accepted,
+            "rejected_by": codes,
+        }
+        for name in SLOPE_COLUMNS:
+            columns[name].append(values[name])
+    out = pd.DataFrame({name: np.concatenate(parts) for name, parts in columns.items()}, columns=SLOPE_COLUMNS)
+    if not (np.diff(seg.cycle) > 0).all():  # a hand-edited table: order rows by cycle
+        out = out.sort_values(["channel", "cycle"], kind="stable").reset_index(drop=True)
+    return out
 
 
 def steepest_window_slopes(time_s: Any, oxygen_mg_l: Mapping[str, Any], phases: pd.DataFrame,
@@ -647,46 +706,73 @@ def steepest_window_slopes(time_s: Any, oxygen_mg_l: Mapping[str, Any], phases: 
     t = _time(time_s)
     window = float(_validate.positive("window_s", window_s, "s"))
     oxygen = _channels("oxygen_mg_l", oxygen_mg_l, t.size)
-    seg = _Segments(phases, t.size)
-    tg = t[seg.index]
-    total = tg.size
-    tc = tg - (seg.sum(tg) / seg.lengths)[seg.seg]
-    seg_end = (seg.offsets + seg.lengths)[seg.seg]
+    seg = _Segments(phases, t)
+    tg, tc, total = seg.tg, seg.tc, seg.total
+    seg_end = seg.spread(seg.offsets + seg.lengths)
     tol = 1e-9 * max(window, 1.0)
     j = np.searchsorted(tg, tg + window - tol, side="left")
     complete = j < seg_end
     j = np.minimum(j + 1, total)  # exclusive end: the reading at or just past start + window
+    rank = np.arange(total)
+
+    def cums(x: np.ndarray) -> np.ndarray:
+        out = np.empty(x.size + 1)
+        out[0] = 0.0
+        np.cumsum(x, out=out[1:])
+        return out
+
+    def window_sum(c: np.ndarray) -> np.ndarray:
+        return c[j] - c[:-1]
+
+    # time sums shared by channels without missing readings
+    nn_full = (j - rank).astype(float)
+    su_full = window_sum(cums(tc))
+    sxx_full = window_sum(cums(tc * tc)) - su_full * su_full / nn_full
     rows = []
     for channel, y in oxygen.items():
         yg = y[seg.index]
-        ok = np.isfinite(yg)
-        w = ok.astype(float)
-        ybar = seg.sum(np.where(ok, yg, 0.0)) / np.maximum(seg.sum(w), 1.0)
-        v = np.where(ok, yg - ybar[seg.seg], 0.0)
-        uw = tc * w
-
-        def cums(x: np.ndarray) -> np.ndarray:
-            return np.concatenate(([0.0], np.cumsum(x)))
-
-        c_n, c_u, c_v = cums(w), cums(uw), cums(v)
-        c_uu, c_uv, c_vv = cums(uw * tc), cums(uw * v), cums(v * v)
-        i = np.arange(total)
-        nn = c_n[j] - c_n[i]
-        su, sv = c_u[j] - c_u[i], c_v[j] - c_v[i]
+        sy = seg.sum(yg)
+        if np.isfinite(sy).all():
+            v = yg
+            v -= seg.spread(sy / seg.lengths)
+            nn, su, sxx, w = nn_full, su_full, sxx_full, None
+            sv = window_sum(cums(v))
+            sxy = window_sum(cums(tc * v))
+            sxy -= su * sv / nn
+        else:
+            ok = np.isfinite(yg)
+            w = ok.astype(float)
+            ybar = seg.sum(np.where(ok, yg, 0.0)) / np.maximum(seg.sum(w), 1.0)
+            v = np.where(ok, yg - seg.spread(ybar), 0.0)
+            uw = tc * w
+            nn = window_sum(cums(w))
+            su = window_sum(cums(uw))
+            sv = window_sum(cums(v))
+            with np.errstate(invalid="ignore", divide="ignore"):
+                sxx = window_sum(cums(uw * tc)) - su * su / nn
+                sxy = window_sum(cums(uw * v)) - su * sv / nn
         with np.errstate(invalid="ignore", divide="ignore"):
-            sxx = (c_uu[j] - c_uu[i]) - su * su / nn
-            sxy = (c_uv[j] - c_uv[i]) - su * sv / nn
-            syy = (c_vv[j] - c_vv[i]) - sv * sv / nn
             slope = sxy / sxx
-            r2 = np.where(syy > 0, sxy * sxy / (sxx * syy), 0.0)
         valid = complete & (nn >= 3) & (sxx > 0)
         masked = np.where(valid, slope, np.inf)
         best = np.minimum.reduceat(masked, seg.offsets)
         count = np.add.reduceat(valid.astype(np.int64), seg.offsets)
-        is_best = valid & (masked == best[seg.seg])
-        where = np.minimum.reduceat(np.where(is_best, i, total), seg.offsets)
+        is_best = masked == seg.spread(best)
+        where = np.minimum.reduceat(np.where(is_best & valid, rank, total), seg.offsets)
         has = count > 0
         pick = np.where(has, where, 0)
+        # R² only for the chosen windows
+        # Syy only for the chosen windows: gather their readings (a small share of the trace)
+        w_len = np.where(has, j[pick] - pick, 0)
+        w_off = np.cumsum(w_len) - w_len
+        w_idx = np.arange(w_len.sum()) + np.repeat(pick - w_off, w_len)
+        vv = v[w_idx] ** 2
+        sum_vv = np.add.reduceat(vv, w_off[has]) if has.any() else np.zeros(0)
+        syy = np.zeros(seg.size)
+        syy[has] = sum_vv
+        syy = syy - sv[pick] ** 2 / nn[pick]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            r2 = np.where(has, np.where(syy > 0, sxy[pick] ** 2 / (sxx[pick] * syy), 0.0), np.nan)
         rows.append(pd.DataFrame({
             "channel": channel,
             "cycle": seg.cycle,
@@ -694,11 +780,10 @@ def steepest_window_slopes(time_s: Any, oxygen_mg_l: Mapping[str, Any], phases: 
             "window_start_s": np.where(has, tg[pick], np.nan),
             "n_windows": count,
             "slope_mg_l_s": np.where(has, best, np.nan),
-            "r2": np.where(has, r2[pick], np.nan),
+            "r2": r2,
         }, columns=WINDOW_COLUMNS))
     out = pd.concat(rows, ignore_index=True)
     return out.sort_values(["channel", "cycle"], kind="stable").reset_index(drop=True)
-
 
 # --- units ----------------------------------------------------------------------------------
 
@@ -734,49 +819,78 @@ def concentration_from_trace(trace_oxygen: Mapping[str, Any], unit: str, tempera
     concentration that a given % air saturation represents. Every unit of a logger is a
     constant multiple of mg/L at fixed temperature, salinity and pressure, so the factor is
     computed once per distinct logged temperature (loggers log temperature at a fixed
-    resolution) and applied to the readings.
+    resolution, and it changes slowly: runs of equal readings are found first) and applied to
+    the readings.
     """
     from swimlab import oxygen as ox
 
     source = ox.canonical_unit(unit, "unit")
-    first = next(iter(trace_oxygen)) if isinstance(trace_oxygen, Mapping) and trace_oxygen else None
-    if first is None:
-        raise InputError("trace_oxygen has no channels", field="trace_oxygen")
-    n = np.asarray(trace_oxygen[first]).size
+    if not isinstance(trace_oxygen, Mapping) or not trace_oxygen:
+        raise InputError("trace_oxygen must be a dict of channel -> readings with at least one channel",
+                         field="trace_oxygen")
+    n = np.asarray(trace_oxygen[next(iter(trace_oxygen))]).size
     values = _channels("oxygen", trace_oxygen, n)
+    cache: dict[int, tuple] = {}
+
+    def factors(channel: str) -> tuple[np.ndarray, np.ndarray | None, np.ndarray]:
+        """Per run of equal temperatures: mg/L per unit, % air saturation per unit, run length."""
+        raw = temperature_c.get(channel) if isinstance(temperature_c, Mapping) else temperature_c
+        temp = _temperature_for(temperature_c, channel, n)
+        key = id(raw) if raw is not None else id(temp)
+        if key in cache:
+            return cache[key]
+        change = np.flatnonzero(temp[1:] != temp[:-1]) + 1  # NaN != NaN: each NaN is its own run
+        starts = np.concatenate(([0], change))
+        lengths = np.diff(np.concatenate((starts, [n])))
+        run_t = temp[starts]
+        inverse, levels = pd.factorize(run_t, sort=False, use_na_sentinel=True)
+        levels = np.asarray(levels, dtype=float)
+        if levels.size == 0:
+            raise InputError(f"channel {channel!r} has no finite temperature reading",
+                             field=f"temperature_c.{channel}")
+        try:
+            to_mg = np.asarray(ox.convert(np.ones(levels.size), source, ox.MG_L, levels, salinity,
+                                          pressure_pa), dtype=float)
+            to_pct = (np.ones(levels.size) if source == ox.PERCENT_AIR_SATURATION else
+                      np.asarray(ox.convert(np.ones(levels.size), source, ox.PERCENT_AIR_SATURATION,
+                                            levels, salinity, pressure_pa), dtype=float))
+        except InputError as exc:
+            raise InputError(f"channel {channel!r}: {exc}", field=f"temperature_c.{channel}") from exc
+        to_mg = np.append(to_mg, np.nan)[inverse]  # sentinel -1 -> NaN (missing temperature)
+        to_pct = np.append(to_pct, np.nan)[inverse]
+        cache[key] = (to_mg, None if source == ox.PERCENT_AIR_SATURATION else to_pct, lengths)
+        return cache[key]
+
+    def first(mask: np.ndarray) -> int:
+        return int(np.flatnonzero(mask)[0])
+
     out: dict[str, np.ndarray] = {}
     for channel, y in values.items():
-        negative = y < 0
-        if negative.any():
-            i = int(np.flatnonzero(negative)[0])
+        low = np.min(y)
+        if low < 0 or (np.isnan(low) and (y < 0).any()):
+            i = first(y < 0)
             raise InputError(f"channel {channel!r} reading {i + 1} is {y[i]!r} {source}; oxygen "
                              f"cannot be negative", field=f"oxygen.{channel}", row=i + 1)
         if source == ox.MG_L:
             out[channel] = y.copy()
             continue
-        temp = _temperature_for(temperature_c, channel, n)
-        ok = np.isfinite(y) & np.isfinite(temp)
-        result = np.full(n, np.nan)
-        if not ok.any():
-            raise InputError(f"channel {channel!r} has no reading with both oxygen and temperature",
-                             field=f"temperature_c.{channel}")
-        levels, inverse = np.unique(temp[ok], return_inverse=True)
-        try:
-            factor = np.asarray(ox.convert(np.ones(levels.size), source, ox.MG_L, levels, salinity,
-                                           pressure_pa), dtype=float)
-            pct_factor = (np.ones(levels.size) if source == ox.PERCENT_AIR_SATURATION else
-                          np.asarray(ox.convert(np.ones(levels.size), source, ox.PERCENT_AIR_SATURATION,
-                                                levels, salinity, pressure_pa), dtype=float))
-        except InputError as exc:
-            raise InputError(f"channel {channel!r}: {exc}", field=f"temperature_c.{channel}") from exc
-        over = y[ok] * pct_factor[inverse] > ox.MAX_PERCENT_AIR_SATURATION
-        if over.any():
-            i = int(np.flatnonzero(ok)[np.flatnonzero(over)[0]])
+        to_mg, to_pct, lengths = factors(channel)
+        if to_pct is None:
+            high = np.max(y)
+            too_high = high > ox.MAX_PERCENT_AIR_SATURATION or (
+                np.isnan(high) and (y > ox.MAX_PERCENT_AIR_SATURATION).any())
+            over = y > ox.MAX_PERCENT_AIR_SATURATION if too_high else None
+        else:
+            over = y * np.repeat(to_pct, lengths) > ox.MAX_PERCENT_AIR_SATURATION
+            over = over if over.any() else None
+        if over is not None:
+            i = first(over)
             raise InputError(
                 f"channel {channel!r} reading {i + 1} is {y[i]!r} {source}, beyond "
                 f"{ox.MAX_PERCENT_AIR_SATURATION:g} % air saturation; check the unit of the column",
                 field=f"oxygen.{channel}", row=i + 1)
-        result[ok] = y[ok] * factor[inverse]
+        result = np.repeat(to_mg, lengths)
+        result *= y
         out[channel] = result
     return out
 
@@ -918,14 +1032,16 @@ def _flush_flags(time_s: Any, oxygen_pct: Mapping[str, Any], phases: pd.DataFram
     tail_start = np.maximum(tail_start, start)
     cycles = flush["cycle"].to_numpy()
     measured = set(zip(slopes["channel"].astype(str), slopes["cycle"].astype(int), strict=True))
+    lengths = stop - tail_start
+    offsets = np.cumsum(lengths) - lengths
+    tail = np.arange(lengths.sum()) + np.repeat(tail_start - offsets, lengths)
     flags = []
     for channel, values in _channels("oxygen_pct", oxygen_pct, t.size).items():
-        ok = np.isfinite(values)
-        c_v = np.concatenate(([0.0], np.cumsum(np.where(ok, values, 0.0))))
-        c_n = np.concatenate(([0], np.cumsum(ok)))
-        count = c_n[stop] - c_n[tail_start]
+        v = values[tail]
+        ok = np.isfinite(v)
+        count = np.add.reduceat(ok.astype(float), offsets)
         with np.errstate(invalid="ignore", divide="ignore"):
-            level = (c_v[stop] - c_v[tail_start]) / count
+            level = np.add.reduceat(np.where(ok, v, 0.0), offsets) / count
             short = level < s.flush_restore_pct_air_sat
         for k in np.flatnonzero(short):
             cycle = int(cycles[k])

@@ -398,7 +398,7 @@ def phase_uptake(
     table = slopes.copy().reset_index(drop=True)
     flags: list[dict] = []
     n = len(table)
-    keys = set(zip(table["channel"].astype(str), table["cycle"].astype(int), strict=True))
+    keys = set(zip(table["channel"].astype(str), table["cycle"].astype(int), strict=True)) if exclusions else set()
     for key, reason in exclusions.items():
         try:
             channel, cycle = str(key[0]), int(key[1])
@@ -459,21 +459,21 @@ def phase_uptake(
         fish_id[rows] = fid
     with np.errstate(invalid="ignore", divide="ignore"):
         share = cols["background_slope_mg_l_s"] / slope
-    excluded = np.array([(c, int(k)) in exclusions for c, k in zip(channels, table["cycle"], strict=True)],
-                        dtype=bool)
-    reason = np.array([exclusions.get((c, int(k)), "") for c, k in zip(channels, table["cycle"], strict=True)],
-                      dtype=object)
+    if exclusions:
+        pairs = list(zip(channels, table["cycle"].astype(int), strict=True))
+        excluded = np.array([p in exclusions for p in pairs], dtype=bool)
+        reason = np.array([exclusions.get(p, "") for p in pairs], dtype=object)
+    else:
+        excluded = np.zeros(n, dtype=bool)
+        reason = np.full(n, "", dtype=object)
     accepted = table["accepted"].to_numpy().astype(bool)
     with np.errstate(invalid="ignore"):
         positive = cols["mo2_mg_h"] > 0
     used = accepted & ~excluded & positive
-    table["fish_id"] = fish_id
-    for name, values in cols.items():
-        table[name] = values
-    table["background_share"] = share
-    table["excluded"] = excluded
-    table["exclusion_reason"] = reason.astype(str)
-    table["used"] = used
+    added = {"fish_id": fish_id, **cols, "background_share": share, "excluded": excluded,
+             "exclusion_reason": reason, "used": used}
+    table = pd.concat([table.drop(columns=[c for c in added if c in table.columns]),
+                       pd.DataFrame({c: added[c] for c in UPTAKE_COLUMNS}, index=table.index)], axis=1)
     if settings.reference_mass_kg is not None:
         masses = cols["fish_mass_g"] / G_PER_KG
         ok = np.isfinite(cols["mo2_mg_kg_h"])

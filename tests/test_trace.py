@@ -187,6 +187,22 @@ def test_slopes_match_scipy_linregress_per_phase():
         assert got.n_points == x.size
 
 
+def test_lowest_pct_is_the_fitted_line_in_pct_at_constant_temperature():
+    # At one temperature % and mg/L are proportional, so the lowest fitted end in % equals the
+    # linregress line of the % readings at the phase's last reading.
+    t, pump, y = _sawtooth(seed=6)
+    pct = y * 10.4
+    pct_gap = pct.copy()
+    phases = trace.phases_from_pump(t, pump, 30.0)
+    measure = phases[phases.phase == "measure"].reset_index(drop=True)
+    pct_gap[measure.i_stop.iloc[1] - 1] = np.nan  # the end reading missing: ratio from the sums
+    out = trace.fit_slopes(t, {"A": y}, phases, oxygen_pct={"A": pct_gap})
+    for k, row in measure.iterrows():
+        x = t[row.i_start:row.i_stop]
+        ref = stats.linregress(x, pct[row.i_start:row.i_stop])
+        assert out.iloc[k].o2_min_pct_air_sat == pytest.approx(ref.intercept + ref.slope * x[-1], rel=1e-9)
+
+
 def test_slopes_with_missing_readings_match_linregress_on_the_rest():
     t, pump, y = _sawtooth(seed=5)
     y = y.copy()
