@@ -26,14 +26,16 @@ DEMO_DIR = Path(os.environ.get("SWIMLAB_DEMO_DIR") or Path(__file__).parent / "d
 @st.cache_resource(show_spinner="Loading the demo sessions into the empty lab book…")
 def _load_demo_sessions(url: str | None, demo_dir: str) -> tuple[int, tuple[str, ...]]:
     """Import every bundle in ``demo_dir`` when the lab book is empty (once per lab book)."""
-    from swimlab.io.bundle import read_bundle
+    from swimlab.io.bundle import SESSION_JSON, read_bundle
 
     book = common._open_labbook(url)
     if not book.list_sessions().empty:
         return 0, ()
     loaded, problems = 0, []
     folder = Path(demo_dir)
-    candidates = sorted(p for p in folder.iterdir() if p.is_dir() or p.suffix == ".zip") if folder.is_dir() else []
+    candidates = sorted(
+        p for p in folder.iterdir() if (p.is_dir() and (p / SESSION_JSON).is_file()) or p.suffix == ".zip"
+    ) if folder.is_dir() else []
     for path in candidates:
         try:
             contents = read_bundle(path)
@@ -78,7 +80,6 @@ if loaded and not st.session_state.get("app_demo_told"):
 with st.sidebar:
     st.text_input("Your name", key="app_user", help="Recorded in the audit trail with every save.",
                   placeholder="e.g. A. Student")
-    common.session_banner()
     if demo_problems:
         with st.expander("Demo sessions not loaded"):
             for line in demo_problems:

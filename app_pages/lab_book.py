@@ -44,6 +44,28 @@ statuses = filters[1].multiselect("Status", STATUSES, key="lb_status", placehold
 count_flags = filters[2].toggle("Count flags", key="lb_count_flags", value=True,
                                 help="Analyses each session once (cached) to count its flags.")
 
+COLUMN_CONFIG = {
+    "title": st.column_config.TextColumn("Title"),
+    "fish": st.column_config.TextColumn("Fish"),
+    "trial_date": st.column_config.DateColumn("Date"),
+    "temperature_c": st.column_config.NumberColumn("Temperature [°C]", format="%.1f"),
+    "status": st.column_config.TextColumn("Status"),
+    "flags": st.column_config.NumberColumn("Flags", help="Number of flags raised by the checks"),
+    "operator": st.column_config.TextColumn("Operator"),
+    "version": st.column_config.NumberColumn("Version"),
+    "updated_at": st.column_config.DatetimeColumn("Last saved"),
+    "session_id": st.column_config.TextColumn("Session id"),
+}
+ORDER = ["title", "fish", "trial_date", "temperature_c", "status", "flags", "operator", "version", "updated_at",
+         "session_id"]
+
+
+def _show(frame: pd.DataFrame) -> None:
+    columns = [c for c in ORDER if c in frame.columns]
+    slot.dataframe(frame[columns] if not frame.empty else pd.DataFrame(columns=columns), hide_index=True,
+                   width="stretch", column_config=COLUMN_CONFIG)
+
+
 view = table.copy()
 if not view.empty:
     if text:
@@ -52,39 +74,20 @@ if not view.empty:
         view = view[hay.str.contains(needle, regex=False)]
     if statuses:
         view = view[view["status"].isin(statuses)]
-    if count_flags and not view.empty:
-        progress = st.progress(0.0, text="Counting flags…")
-        counts = []
-        for i, row in enumerate(view.itertuples(index=False), start=1):
-            try:
-                counts.append(_flag_count(row.session_id, int(row.version), common.database_url()))
-            except ImportError:
-                counts.append(None)
-            progress.progress(i / len(view), text=f"Counting flags… {i}/{len(view)}")
-        progress.empty()
-        view = view.assign(flags=pd.array(counts, dtype="Int64"))
-
-columns = [c for c in ["title", "fish", "trial_date", "temperature_c", "status", "flags", "operator", "version",
-                        "updated_at", "session_id"]
-           if c in view.columns]
-st.dataframe(
-    view[columns] if not view.empty else pd.DataFrame(columns=columns),
-    hide_index=True,
-    width="stretch",
-    key="lb_table",
-    column_config={
-        "title": st.column_config.TextColumn("Title"),
-        "fish": st.column_config.TextColumn("Fish"),
-        "trial_date": st.column_config.DateColumn("Date"),
-        "temperature_c": st.column_config.NumberColumn("Temperature [°C]", format="%.1f"),
-        "status": st.column_config.TextColumn("Status"),
-        "flags": st.column_config.NumberColumn("Flags", help="Number of flags raised by the checks"),
-        "operator": st.column_config.TextColumn("Operator"),
-        "version": st.column_config.NumberColumn("Version"),
-        "updated_at": st.column_config.DatetimeColumn("Last saved"),
-        "session_id": st.column_config.TextColumn("Session id"),
-    },
-)
+slot = st.empty()
+_show(view)  # at once; the flag counts follow
+if count_flags and not view.empty:
+    progress = st.progress(0.0, text="Counting flags…")
+    counts = []
+    for i, row in enumerate(view.itertuples(index=False), start=1):
+        try:
+            counts.append(_flag_count(row.session_id, int(row.version), common.database_url()))
+        except ImportError:
+            counts.append(None)
+        progress.progress(i / len(view), text=f"Counting flags… {i}/{len(view)}")
+    progress.empty()
+    view = view.assign(flags=pd.array(counts, dtype="Int64"))
+    _show(view)
 st.caption(f"{len(view)} of {len(table)} session(s). Click a column header to sort.")
 
 # --- open -----------------------------------------------------------------------------------

@@ -75,7 +75,7 @@ def grid(name: str, protocol_type: str, *, caption: str | None = None) -> None:
     edited = st.data_editor(
         st.session_state[base_key], key=key, hide_index=True, width="stretch",
         num_rows="dynamic" if section.many else "fixed",
-        column_config=_column_config(section, columns), disabled=frozen,
+        column_config=_column_config(section, columns), disabled=frozen, placeholder="",
     )
     frames[name] = edited.reset_index(drop=True)
     under[name] = st.container()

@@ -83,9 +83,10 @@ if upload is not None:
         st.success("These columns were seen before: the mapping saved for them is used. Check it below.")
     else:
         st.info("The mapping below is a guess from the column names. Check it before attaching the file.")
+    marks = {",": "comma", ";": "semicolon", "\t": "tab", " ": "space", ".": "point", "|": "bar"}
     st.caption(
-        f"Read as: encoding {sniffed.encoding}, delimiter {sniffed.delimiter!r}, decimal {sniffed.decimal!r}, "
-        f"header on line {sniffed.header_line + 1 if isinstance(sniffed.header_line, int) else sniffed.header_line}."
+        f"Read as: encoding {sniffed.encoding}; columns separated by {marks.get(sniffed.delimiter, repr(sniffed.delimiter))}; "
+        f"decimal {marks.get(sniffed.decimal, repr(sniffed.decimal))}; column names on line {int(sniffed.header_line) + 1}."
     )
     preview = sniffed.preview if isinstance(sniffed.preview, pd.DataFrame) else pd.DataFrame(sniffed.preview)
     st.markdown("**First rows of the file**")
