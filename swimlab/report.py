@@ -1491,7 +1491,7 @@ def _session_figures(f: _Facts, number_from: int = 1) -> list[ReportFigure]:
         if other:
             cap += f" The {_join(other)} fit is poorly constrained and was not chosen."
         figs.append(_build(f"mo2_speed_{fid}", f"Figure {n}", cap,
-                           lambda fid=fid, fits=fits: plots.speed_mo2_figure(f.steps, fits, fid, measure=f.measure), 330))
+                           lambda fid=fid, fits=fits: _mo2_speed_for_print(f, fid, fits), 330))
         n += 1
         has_cot = "cot_gross_mg_kg_km" in own_steps and own_steps["cot_gross_mg_kg_km"].notna().any()
         if has_cot:
@@ -1506,6 +1506,27 @@ def _session_figures(f: _Facts, number_from: int = 1) -> list[ReportFigure]:
                                lambda fid=fid: plots.cot_figure(f.steps, f.results, fid), 300))
             n += 1
     return figs
+
+
+def _mo2_speed_for_print(f: _Facts, fid: str, fits: Any) -> Any:
+    """The MO2–speed figure of swimlab.plots with its MO2 axis held to the data.
+
+    A wide band of a poorly constrained fit would otherwise set the axis and flatten the data;
+    the axis ends 30 % above the highest MO2 measured (step mean + SD or a single phase).
+    """
+    from swimlab import plots
+
+    fig = plots.speed_mo2_figure(f.steps, fits, fid, measure=f.measure)
+    own = f.steps[f.steps["fish_id"].astype(str) == str(fid)]
+    tops = [own["mo2_mg_kg_h"] + own["mo2_sd_mg_kg_h"].fillna(0)] if "mo2_sd_mg_kg_h" in own else [own["mo2_mg_kg_h"]]
+    m = f.measure
+    if not m.empty and {"fish_id", "mo2_mg_kg_h"} <= set(m.columns):
+        tops.append(m.loc[(m["fish_id"].astype(str) == str(fid)) & _bool_col(m, "used", True), "mo2_mg_kg_h"])
+    values = pd.concat(tops).to_numpy(dtype=float)
+    values = values[np.isfinite(values)]
+    if values.size:
+        fig.update_yaxes(range=[0.0, 1.3 * float(values.max())], rangemode=None)
+    return fig
 
 
 def _uopt_outside(f: _Facts, fid: str) -> bool:
