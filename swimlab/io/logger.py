@@ -487,6 +487,33 @@ def _column_names(parts: list[str], width: int, name: str, line: int) -> list[st
     return out
 
 
+_UNIT_CELL = re.compile(
+    r"^[\[(]?\s*(?:s|sec|min|h|%|%\s*air\s*sat\.?|%\s*sat\.?|mg/l|µmol/l|μmol/l|umol/l|"
+    r"hpa|kpa|mmhg|torr|mbar|ppm|°\s*c|degc|c|-)\s*[\])]?$",
+    re.IGNORECASE,
+)
+
+
+def _header_names(lines: list[str], index: int, delimiter: str, width: int, name: str) -> list[str]:
+    """Column names from line ``index``; a line of units under a line of names is merged.
+
+    When line ``index`` holds only units (``s``, ``%``, ``[mg/L]``, ``°C``...) and the line
+    before it has as many fields, the names are ``"<name> [<unit>]"``.
+    """
+    parts = _fields(lines[index], delimiter)
+    cells = [p.strip() for p in parts]
+    if index > 0 and any(cells) and all(_UNIT_CELL.match(c) for c in cells if c):
+        above = _fields(lines[index - 1], delimiter)
+        if len(above) == len(parts) and _is_header(above, len(above)):
+            merged = []
+            for n, u in zip(above, cells, strict=True):
+                n = n.strip()
+                u = u.strip("[]() ")
+                merged.append(f"{n} [{u}]" if u and n else n or u)
+            parts = merged
+    return _column_names(parts, width, name, index + 1)
+
+
 def _find_layout(data: bytes, name: str) -> _Layout:
     text, encoding, bom, truncated = _decode_head(data, name, None)
     lines = _split_lines(text)
@@ -539,7 +566,7 @@ def _find_layout(data: bytes, name: str) -> _Layout:
         raise InputError(f"found no line of column names before the first reading at line "
                          f"{start + 1}; expected a line of names separated by "
                          f"{_delim_name(delimiter)}", file=name, row=start + 1)
-    columns = _column_names(part(header), width, name, header + 1)
+    columns = _header_names(lines, header, delimiter, width, name)
     after = [i for i in nonblank if i > header][:_GUESS_ROWS]
     rows = [part(i) for i in after]
     row_lines = [i + 1 for i in after]
@@ -999,11 +1026,10 @@ def _mapped_layout(data: bytes, name: str, mapping: ColumnMapping) -> tuple[list
     if mapping.header_line >= len(lines):
         raise InputError(f"the mapping's column-name line {mapping.header_line + 1} is past the "
                          f"file's {len(lines)} lines", file=name, row=mapping.header_line + 1)
-    header = _fields(lines[mapping.header_line], mapping.delimiter)
-    following = [lines[i] for i in range(mapping.header_line + 1, len(lines)) if lines[i].strip()]
-    width, _ = _mode([len(_fields(line, mapping.delimiter)) for line in following[:50]])
-    width = width or len(header)
-    columns = _column_names(header, max(width, 1), name, mapping.header_line + 1)
+    following = [line for line in lines[mapping.header_line + 1:] if line.strip()][:50]
+    width, _ = _mode([len(_fields(line, mapping.delimiter)) for line in following])
+    width = width or len(_fields(lines[mapping.header_line], mapping.delimiter))
+    columns = _header_names(lines, mapping.header_line, mapping.delimiter, max(width, 1), name)
     wanted = [mapping.time, mapping.date, mapping.pump, *mapping.oxygen.values(),
               *mapping.temperature.values()]
     for col in wanted:
