@@ -9,7 +9,8 @@ the background model), so a test can check an analysis against what actually hap
 
 The model, in the respirometer's water (concentration C, mg/L):
 
-- closed (wait, measure): dC/dt = −MO2(U) / (3600 (V_resp − V_fish)) − r_bg(t);
+- closed (wait, measure): dC/dt = −MO2(U) / (3600 (V_resp − V_fish)) − r_bg(t), with the
+  fish's volume V_fish = mass / (1 kg/L);
 - flush: dC/dt = (C_sat(T) − C) / τ_flush − (the same uptake): first-order exchange with
   air-saturated water (a well-mixed respirometer flushed at a constant rate);
 - MO2(U) is a true speed–MO2 curve: ``"exponential"`` a·e^(bU) or ``"power"`` a + b·U^c

@@ -436,37 +436,61 @@ class _Segments:
         return self._powers
 
 
-def _moments(seg: _Segments, y: np.ndarray, *, quadratic: bool = True) -> dict[str, np.ndarray]:
-    """Centred sums of one channel's measure phases; missing readings get zero weight."""
-    yg = y[seg.index]
-    sy = seg.sum(yg)
-    if np.isfinite(sy).all():
-        n = seg.lengths.astype(float)
-        ybar = sy / n
-        v = yg
-        v -= seg.spread(ybar)  # yg is a fresh copy: centre it in place
-        tc2, sxx, su3, su4 = seg.powers()
-        buffer = np.multiply(seg.tc, v)
-        out = {"n": n, "tbar": np.zeros(seg.size), "ybar": ybar, "sxx": sxx, "sxy": seg.sum(buffer)}
-        if quadratic:
-            np.multiply(v, v, out=buffer)
-            syy = seg.sum(buffer)
-            np.multiply(tc2, v, out=buffer)
-            out.update(syy=syy, su3=su3, su4=su4, su2y=seg.sum(buffer))
-        return out
+def _weighted_moments(tc: np.ndarray, yg: np.ndarray, offsets: np.ndarray, lengths: np.ndarray,
+                      quadratic: bool) -> dict[str, np.ndarray]:
+    """Centred sums per run of ``yg`` (runs at ``offsets``), missing readings at zero weight."""
     finite = np.isfinite(yg)
     w = finite.astype(float)
     y0 = np.where(finite, yg, 0.0)
-    n = seg.sum(w)
+
+    def total(x: np.ndarray) -> np.ndarray:
+        return np.add.reduceat(x, offsets)
+
+    n = total(w)
     with np.errstate(invalid="ignore", divide="ignore"):
-        tbar = seg.sum(w * seg.tc) / n
-        ybar = seg.sum(y0) / n
-    u = (seg.tc - seg.spread(np.nan_to_num(tbar))) * w
-    v = (y0 - seg.spread(np.nan_to_num(ybar))) * w
+        tbar = total(w * tc) / n
+        ybar = total(y0) / n
+    u = (tc - np.repeat(np.nan_to_num(tbar), lengths)) * w
+    v = (y0 - np.repeat(np.nan_to_num(ybar), lengths)) * w
     u2 = u * u
-    out = {"n": n, "tbar": tbar, "ybar": ybar, "sxx": seg.sum(u2), "sxy": seg.sum(u * v)}
+    out = {"n": n, "tbar": tbar, "ybar": ybar, "sxx": total(u2), "sxy": total(u * v)}
     if quadratic:
-        out.update(syy=seg.sum(v * v), su3=seg.sum(u2 * u), su4=seg.sum(u2 * u2), su2y=seg.sum(u2 * v))
+        out.update(syy=total(v * v), su3=total(u2 * u), su4=total(u2 * u2), su2y=total(u2 * v))
+    return out
+
+
+def _moments(seg: _Segments, y: np.ndarray, *, quadratic: bool = True) -> dict[str, np.ndarray]:
+    """Centred sums of one channel's measure phases; missing readings get zero weight.
+
+    Phases without a missing reading take the fast path (shared time sums); only the phases
+    that have one are summed again with weights.
+    """
+    yg = y[seg.index]
+    sy = seg.sum(yg)
+    gap = ~np.isfinite(sy)
+    if gap.all():
+        return _weighted_moments(seg.tc, yg, seg.offsets, seg.lengths, quadratic)
+    n = seg.lengths.astype(float)
+    ybar = sy / n
+    v = yg
+    v -= seg.spread(ybar)  # yg is a fresh copy: centre it in place
+    tc2, sxx, su3, su4 = seg.powers()
+    buffer = np.multiply(seg.tc, v)
+    out = {"n": n, "tbar": np.zeros(seg.size), "ybar": ybar, "sxx": sxx, "sxy": seg.sum(buffer)}
+    if quadratic:
+        np.multiply(v, v, out=buffer)
+        syy = seg.sum(buffer)
+        np.multiply(tc2, v, out=buffer)
+        out.update(syy=syy, su3=su3, su4=su4, su2y=seg.sum(buffer))
+    if gap.any():
+        lengths = seg.lengths[gap]
+        offsets = np.cumsum(lengths) - lengths
+        rows = np.arange(lengths.sum()) + np.repeat(seg.offsets[gap] - offsets, lengths)
+        redo = _weighted_moments(seg.tc[rows], y[seg.index[rows]], offsets, lengths, quadratic)
+        for key, value in redo.items():
+            full = np.array(out[key], dtype=float, copy=True)
+            full[gap] = value
+            out[key] = full
     return out
 
 

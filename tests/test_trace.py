@@ -203,10 +203,12 @@ def test_lowest_pct_is_the_fitted_line_in_pct_at_constant_temperature():
         assert out.iloc[k].o2_min_pct_air_sat == pytest.approx(ref.intercept + ref.slope * x[-1], rel=1e-9)
 
 
-def test_slopes_with_missing_readings_match_linregress_on_the_rest():
+@pytest.mark.parametrize("gaps", [[250, 251, 300, 1400, 1999],  # some phases have gaps
+                                  [250, 900, 1400, 1999, 2600, 2999]])  # every phase has one
+def test_slopes_with_missing_readings_match_linregress_on_the_rest(gaps):
     t, pump, y = _sawtooth(seed=5)
     y = y.copy()
-    y[[250, 251, 300, 1400, 1999]] = np.nan
+    y[gaps] = np.nan
     phases = trace.phases_from_pump(t, pump, 30.0)
     out = trace.fit_slopes(t, {"A": y}, phases)
     measure = phases[phases.phase == "measure"].reset_index(drop=True)
