@@ -931,7 +931,8 @@ def reporting_checklist(session: Session, analysis: Any) -> pd.DataFrame:
         "; ".join(f"{fid}: {format_number(r)}" for fid, r in ratios if r is not None) or "not derived",
         "flume.respirometer_volume_l and fish[].mass_g (analysis.fish.volume_ratio)")
     add(KILLEN, "K7", "Respirometer", "How water in the respirometer was mixed", "stated",
-        "by the swim tunnel's own flow", "flume (swim-tunnel respirometer)")
+        "by the swim tunnel's own flow (taken from the kind of apparatus; state any other mixing)",
+        "flume (swim-tunnel respirometer)")
     cyc = s.protocol.cycle
     if cyc.source == "schedule":
         cyc_state = "stated" if cyc.flush_s and cyc.measure_s else "missing"
@@ -1054,8 +1055,12 @@ def reporting_checklist(session: Session, analysis: Any) -> pd.DataFrame:
         add(SWIM, "S5", "Analysis", "Ucrit formula and the speeds it used", "not applicable",
             f"{p.type} protocol", "protocol.type")
     have_fit = any(getattr(f.fits(x.fish_id), "best", None) for x in fish)
-    add(SWIM, "S6", "Analysis", "Speed–MO2 model, its fitting and model selection", "stated" if have_fit else "missing",
-        "exponential and power models, AICc" if have_fit else "no curve fitted", "analysis.fits")
+    if p.type in ("endurance", "recovery"):
+        add(SWIM, "S6", "Analysis", "Speed–MO2 model, its fitting and model selection", "not applicable",
+            f"{p.type} protocol (one speed or none)", "protocol.type")
+    else:
+        add(SWIM, "S6", "Analysis", "Speed–MO2 model, its fitting and model selection", "stated" if have_fit else "missing",
+            "exponential and power models, AICc" if have_fit else "no curve fitted", "analysis.fits")
 
     # --- ARRIVE 2.0 --------------------------------------------------------------------------------
     add(ARRIVE, "3a", "Inclusion and exclusion criteria", "Criteria for including and excluding animals and data points",

@@ -15,6 +15,7 @@ import math
 import re
 import shutil
 import subprocess
+import types
 import zlib
 from pathlib import Path
 from typing import Any
@@ -594,3 +595,32 @@ def test_every_demo_session_reports():
             assert code in html, (path.name, code)
     table = report.study_table(items)
     assert len(table) == sum(len(s.fish) for s, _ in items)
+
+
+def test_session_without_a_trace_reports_what_is_missing(trial):
+    session, _, _ = trial
+    bare = with_changes(session, raw_files=[], blanks=[], background_method="none")
+    analysis = analyse(bare, {})
+    status = types.SimpleNamespace(status="returned", updated_by="p.lead", updated_at="2031-06-05T10:00:00Z",
+                                   return_comment="add the blanks")  # as the lab book's StoredSession
+    rep = report.session_report(bare, analysis, status=status)
+    assert rep.figure_problems == ["Figure 1 (trace): there are no data to draw"]
+    html = rep.html(figures=False)
+    assert "Status: returned (last change by p.lead at 2031-06-05T10:00:00Z) — “add the blanks”" in html
+    assert "not approved; its numbers are not final" in html
+    states, _ = _states(bare, analysis)
+    assert {n for n, s in states.items() if s == "missing"} == {
+        "K14", "K17", "K18", "K21", "K22", "K23", "S6", "3b", "3c", "14"}
+
+
+def test_endurance_protocol_items(trial):
+    session, _, _ = trial
+    protocol = session.to_json_dict()["protocol"]
+    endurance = with_changes(session, raw_files=[], protocol={**protocol, "type": "endurance", "steps": [],
+                                                               "set_speed_cm_s": 40.0, "time_limit_min": 120.0})
+    analysis = analyse(endurance, {})
+    states, _ = _states(endurance, analysis)
+    assert states["S5"] == states["S6"] == "not applicable"
+    methods = text(dict(report.methods_paragraphs(endurance, analysis))["Swimming protocol"])
+    assert "endurance test was used at 40 cm/s with a time limit of 120 min" in methods
+    assert "not a Ucrit" in methods
