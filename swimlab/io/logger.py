@@ -23,7 +23,6 @@ import hashlib
 import json
 import math
 import re
-import threading
 import unicodedata
 from collections import Counter
 from dataclasses import dataclass, field, fields
@@ -1405,18 +1404,14 @@ def read_logger(data: bytes, *, name: str, mapping: ColumnMapping | None = None,
     data = _check_bytes(data, name)
     if not (isinstance(gap_factor, int | float) and gap_factor > 1):
         raise ValueError(f"gap_factor must be a number greater than 1; got {gap_factor!r}")
-    digest: list[str] = []
-    hasher = threading.Thread(target=lambda: digest.append(sha256_hex(data)))
-    hasher.start()
-    try:
-        if mapping is None:
-            mapping = guess_mapping(data, name=name)
-        elif not isinstance(mapping, ColumnMapping):
-            raise TypeError(f"mapping must be a ColumnMapping or None; got {type(mapping).__name__}")
-        trace = _read(data, name, mapping, gap_factor)
-    finally:
-        hasher.join()
-    return LoggerTrace(sha256=digest[0], **trace)
+    if mapping is None:
+        mapping = guess_mapping(data, name=name)
+    elif not isinstance(mapping, ColumnMapping):
+        raise TypeError(f"mapping must be a ColumnMapping or None; got {type(mapping).__name__}")
+    trace = _read(data, name, mapping, gap_factor)
+    # Hashed after the parse, not beside it: a hashing thread competes with the parser's
+    # threads for the cores and costs more than it saves.
+    return LoggerTrace(sha256=sha256_hex(data), **trace)
 
 
 def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> dict[str, Any]:
@@ -1612,9 +1607,13 @@ def _clean_values(col: str, cells: _Cells, kept: np.ndarray, all_kept: bool,
     False); only those few cells are classified further.
     """
     values = cells.values if all_kept else cells.values[kept]
+    inner_codes = [c for c in codes if low <= c <= high]
+    if not inner_codes and values.size and cells.empty is None:
+        # Two reading passes without temporaries; NaN makes both comparisons False.
+        if values.min() >= low and values.max() <= high:
+            return values
     outside = ~((values >= low) & (values <= high))
     idx = np.flatnonzero(outside)
-    inner_codes = [c for c in codes if low <= c <= high]
     if inner_codes:
         inside_code = np.zeros(values.size, dtype=bool)
         for c in inner_codes:
