@@ -731,83 +731,117 @@ def steepest_window_slopes(time_s: Any, oxygen_mg_l: Mapping[str, Any], phases: 
     window = float(_validate.positive("window_s", window_s, "s"))
     oxygen = _channels("oxygen_mg_l", oxygen_mg_l, t.size)
     seg = _Segments(phases, t)
-    tg, tc, total = seg.tg, seg.tc, seg.total
-    seg_end = seg.spread(seg.offsets + seg.lengths)
-    tol = 1e-9 * max(window, 1.0)
-    j = np.searchsorted(tg, tg + window - tol, side="left")
-    complete = j < seg_end
-    j = np.minimum(j + 1, total)  # exclusive end: the reading at or just past start + window
-    rank = np.arange(total)
-
-    def cums(x: np.ndarray) -> np.ndarray:
-        out = np.empty(x.size + 1)
-        out[0] = 0.0
-        np.cumsum(x, out=out[1:])
-        return out
-
-    def window_sum(c: np.ndarray) -> np.ndarray:
-        return c[j] - c[:-1]
-
-    # time sums shared by channels without missing readings
-    nn_full = (j - rank).astype(float)
-    su_full = window_sum(cums(tc))
-    sxx_full = window_sum(cums(tc * tc)) - su_full * su_full / nn_full
+    frame = _window_frame(seg.tg, seg.tc, seg.offsets, seg.lengths, window)
     rows = []
     for channel, y in oxygen.items():
         yg = y[seg.index]
-        sy = seg.sum(yg)
-        if np.isfinite(sy).all():
-            v = yg
-            v -= seg.spread(sy / seg.lengths)
-            nn, su, sxx, w = nn_full, su_full, sxx_full, None
-            sv = window_sum(cums(v))
-            sxy = window_sum(cums(tc * v))
-            sxy -= su * sv / nn
+        gap = ~np.isfinite(seg.sum(yg))
+        if gap.any() and not gap.all():
+            # phases without a gap on the fast path; those with one again, with weights
+            best, count, start, r2 = _best_windows(seg.tc, np.nan_to_num(yg), seg.offsets, seg.lengths, frame)
+            lengths = seg.lengths[gap]
+            offsets = np.cumsum(lengths) - lengths
+            sub = np.arange(lengths.sum()) + np.repeat(seg.offsets[gap] - offsets, lengths)
+            sub_frame = _window_frame(seg.tg[sub], seg.tc[sub], offsets, lengths, window)
+            for full, part in zip((best, count, start, r2),
+                                  _best_windows(seg.tc[sub], yg[sub], offsets, lengths, sub_frame), strict=True):
+                full[gap] = part
         else:
-            ok = np.isfinite(yg)
-            w = ok.astype(float)
-            ybar = seg.sum(np.where(ok, yg, 0.0)) / np.maximum(seg.sum(w), 1.0)
-            v = np.where(ok, yg - seg.spread(ybar), 0.0)
-            uw = tc * w
-            nn = window_sum(cums(w))
-            su = window_sum(cums(uw))
-            sv = window_sum(cums(v))
-            with np.errstate(invalid="ignore", divide="ignore"):
-                sxx = window_sum(cums(uw * tc)) - su * su / nn
-                sxy = window_sum(cums(uw * v)) - su * sv / nn
-        with np.errstate(invalid="ignore", divide="ignore"):
-            slope = sxy / sxx
-        valid = complete & (nn >= 3) & (sxx > 0)
-        masked = np.where(valid, slope, np.inf)
-        best = np.minimum.reduceat(masked, seg.offsets)
-        count = np.add.reduceat(valid.astype(np.int64), seg.offsets)
-        is_best = masked == seg.spread(best)
-        where = np.minimum.reduceat(np.where(is_best & valid, rank, total), seg.offsets)
-        has = count > 0
-        pick = np.where(has, where, 0)
-        # R² only for the chosen windows
-        # Syy only for the chosen windows: gather their readings (a small share of the trace)
-        w_len = np.where(has, j[pick] - pick, 0)
-        w_off = np.cumsum(w_len) - w_len
-        w_idx = np.arange(w_len.sum()) + np.repeat(pick - w_off, w_len)
-        vv = v[w_idx] ** 2
-        sum_vv = np.add.reduceat(vv, w_off[has]) if has.any() else np.zeros(0)
-        syy = np.zeros(seg.size)
-        syy[has] = sum_vv
-        syy = syy - sv[pick] ** 2 / nn[pick]
-        with np.errstate(invalid="ignore", divide="ignore"):
-            r2 = np.where(has, np.where(syy > 0, sxy[pick] ** 2 / (sxx[pick] * syy), 0.0), np.nan)
+            best, count, start, r2 = _best_windows(seg.tc, yg, seg.offsets, seg.lengths, frame)
         rows.append(pd.DataFrame({
             "channel": channel,
             "cycle": seg.cycle,
             "window_s": window,
-            "window_start_s": np.where(has, tg[pick], np.nan),
+            "window_start_s": start,
             "n_windows": count,
-            "slope_mg_l_s": np.where(has, best, np.nan),
+            "slope_mg_l_s": best,
             "r2": r2,
         }, columns=WINDOW_COLUMNS))
     out = pd.concat(rows, ignore_index=True)
     return out.sort_values(["channel", "cycle"], kind="stable").reset_index(drop=True)
+
+
+def _cums(x: np.ndarray) -> np.ndarray:
+    out = np.empty(x.size + 1)
+    out[0] = 0.0
+    np.cumsum(x, out=out[1:])
+    return out
+
+
+def _window_frame(tg: np.ndarray, tc: np.ndarray, offsets: np.ndarray, lengths: np.ndarray,
+                  window: float) -> dict[str, np.ndarray]:
+    """Window ends and time sums of every window start (shared by channels)."""
+    total = tg.size
+    seg_end = np.repeat(offsets + lengths, lengths)
+    tol = 1e-9 * max(window, 1.0)
+    j = np.searchsorted(tg, tg + window - tol, side="left")
+    complete = j < seg_end
+    j = np.minimum(j + 1, total)  # exclusive end: the reading at or just past start + window
+    nn = (j - np.arange(total)).astype(float)
+    c_u = _cums(tc)
+    su = c_u[j] - c_u[:-1]
+    c_uu = _cums(tc * tc)
+    sxx = (c_uu[j] - c_uu[:-1]) - su * su / nn
+    return {"j": j, "complete": complete, "nn": nn, "su": su, "sxx": sxx, "tg": tg}
+
+
+def _best_windows(tc: np.ndarray, yg: np.ndarray, offsets: np.ndarray, lengths: np.ndarray,
+                  frame: dict[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Steepest window of each run: slope, number of windows, start time, R².
+
+    ``yg`` is changed in place (the caller passes a fresh array).
+    """
+    j, complete = frame["j"], frame["complete"]
+    total = yg.size
+    rank = np.arange(total)
+    sy = np.add.reduceat(yg, offsets)
+
+    def window_sum(x: np.ndarray) -> np.ndarray:
+        c = _cums(x)
+        return c[j] - c[:-1]
+
+    if np.isfinite(sy).all():
+        v = yg  # a fresh array from the caller: centre it in place
+        v -= np.repeat(sy / lengths, lengths)
+        nn, su, sxx = frame["nn"], frame["su"], frame["sxx"]
+        sv = window_sum(v)
+        sxy = window_sum(tc * v)
+        sxy -= su * sv / nn
+    else:
+        ok = np.isfinite(yg)
+        w = ok.astype(float)
+        ybar = np.add.reduceat(np.where(ok, yg, 0.0), offsets) / np.maximum(np.add.reduceat(w, offsets), 1.0)
+        v = np.where(ok, yg - np.repeat(ybar, lengths), 0.0)
+        uw = tc * w
+        nn = window_sum(w)
+        su = window_sum(uw)
+        sv = window_sum(v)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            sxx = window_sum(uw * tc) - su * su / nn
+            sxy = window_sum(uw * v) - su * sv / nn
+    with np.errstate(invalid="ignore", divide="ignore"):
+        slope = sxy / sxx
+    valid = complete & (nn >= 3) & (sxx > 0)
+    masked = np.where(valid, slope, np.inf)
+    best = np.minimum.reduceat(masked, offsets)
+    count = np.add.reduceat(valid.view(np.int8), offsets, dtype=np.int64)
+    is_best = valid & (masked == np.repeat(best, lengths))
+    where = np.minimum.reduceat(np.where(is_best, rank, total), offsets)
+    has = count > 0
+    pick = np.where(has, where, 0)
+    # Syy only for the chosen windows: gather their readings (a small share of the trace)
+    w_len = np.where(has, j[pick] - pick, 0)
+    w_off = np.cumsum(w_len) - w_len
+    w_idx = np.arange(w_len.sum()) + np.repeat(pick - w_off, w_len)
+    syy = np.zeros(offsets.size)
+    if has.any():
+        syy[has] = np.add.reduceat(v[w_idx] ** 2, w_off[has])
+    syy = syy - sv[pick] ** 2 / nn[pick]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        r2 = np.where(has, np.where(syy > 0, sxy[pick] ** 2 / (sxx[pick] * syy), 0.0), np.nan)
+    start = np.where(has, frame["tg"][pick], np.nan)
+    return np.where(has, best, np.nan), count, start, r2
+
 
 # --- units ----------------------------------------------------------------------------------
 

@@ -372,13 +372,14 @@ def test_temperature_columns_use_the_channel_or_the_only_probe():
 # --- steepest windows -------------------------------------------------------------------------
 
 
-def test_steepest_window_matches_brute_force_polyfit():
+@pytest.mark.parametrize("gaps", [[], [180, 181, 1300], [180, 700, 1300]])  # none, some, every phase
+def test_steepest_window_matches_brute_force_polyfit(gaps):
     rng = np.random.default_rng(12)
     t = np.arange(1500.0)
     pump = (t % 500) < 100
     pos = t % 500
     y = 10 - 0.001 * pos - 0.3 * np.clip((pos - 250) / 40, 0, 1) + rng.normal(0, 0.02, t.size)
-    y[[180, 181, 1300]] = np.nan
+    y[gaps] = np.nan
     phases = trace.phases_from_pump(t, pump, 20.0)
     out = trace.steepest_window_slopes(t, {"A": y}, phases, 60.0)
     for k, row in phases[phases.phase == "measure"].reset_index(drop=True).iterrows():
@@ -398,6 +399,9 @@ def test_steepest_window_matches_brute_force_polyfit():
         assert got.slope_mg_l_s == pytest.approx(best, rel=1e-7)
         assert got.window_start_s == start
         assert got.window_s == 60.0
+        x, yy = t[int(start):int(start) + 61], y[int(start):int(start) + 61]
+        ok = np.isfinite(yy)
+        assert got.r2 == pytest.approx(stats.linregress(x[ok], yy[ok]).rvalue ** 2, rel=1e-7)
 
 
 def test_window_longer_than_phase_gives_no_window():
