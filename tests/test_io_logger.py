@@ -856,3 +856,18 @@ def test_layout_variants(tmp_path, text, columns):
     assert trace.glitches.empty and trace.time_s.size == 10
     np.testing.assert_allclose(next(iter(trace.oxygen.values()))[:2],
                                [95.0, 94.9] if "%" in columns[1] else [8.0, 7.99], atol=1e-12)
+
+
+def test_remembered_mapping_follows_the_layout_of_a_new_export(tmp_path):
+    first = make_export(preamble=False, seed=1)
+    mapping = guess_mapping(write(tmp_path, first.text, name="a.csv"), name="a.csv")
+    assert mapping.header_line == 0
+    later = make_export(preamble=True, delimiter=";", decimal=",", seed=2)
+    data = write(tmp_path, later.text, "latin-1", name="b.csv")
+    layout = sniff(data, name="b.csv")
+    assert header_fingerprint(layout.columns) == header_fingerprint(first.columns)
+    with pytest.raises(InputError):
+        read_logger(data, name="b.csv", mapping=mapping)
+    trace = read_logger(data, name="b.csv", mapping=mapping.with_layout(layout))
+    np.testing.assert_array_equal(trace.oxygen["2"], later.oxygen["2"])
+    assert trace.mapping.header_line == 4 and trace.mapping.oxygen == mapping.oxygen

@@ -25,7 +25,7 @@ import math
 import re
 import unicodedata
 from collections import Counter
-from dataclasses import dataclass, field, fields
+from dataclasses import dataclass, field, fields, replace
 from datetime import datetime, time
 from typing import Any
 
@@ -316,6 +316,16 @@ class ColumnMapping:
                 value = list(value)
             out[f.name] = value
         return out
+
+    def with_layout(self, layout: SniffResult) -> ColumnMapping:
+        """This mapping with the encoding, delimiter, decimal mark and column-name line of
+        ``layout`` (a :func:`sniff` result of the file about to be read).
+
+        A remembered mapping is found by :func:`header_fingerprint`, which looks at the column
+        names only; the number of metadata lines above them may differ from export to export.
+        """
+        return replace(self, encoding=layout.encoding, delimiter=layout.delimiter,
+                       decimal=layout.decimal, header_line=layout.header_line)
 
     @classmethod
     def from_dict(cls, d: dict[str, Any]) -> ColumnMapping:
