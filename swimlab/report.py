@@ -771,8 +771,10 @@ def _m_speed(f: _Facts) -> str:
                              f"characterised on {ch.date.isoformat()}" if ch.date else "") if x]
         text += ("; " + "; ".join(extra) if extra else "") + ")."
         r2 = getattr(cal, "r2", None)
+        degree = getattr(cal, "degree", None)
         if r2 is not None and not _is_missing(r2):
-            text += f" The calibration's straight-line fit had R² = {format_number(float(r2), 4)}."
+            shape = {1: "straight-line", 2: "quadratic", 3: "cubic"}.get(degree, "least-squares")
+            text += f" The calibration's {shape} least-squares fit had R² = {format_number(float(r2), 4)}."
     else:
         text = f"Water speeds are the set speeds; the tunnel's speed calibration was {NOT_RECORDED}."
     parts = []
@@ -834,9 +836,15 @@ def _m_protocol(f: _Facts) -> str:
         text += (f" Fatigue was reached at {_duration(p.fatigue_time_s)} on the logger's clock." if p.fatigue_time_s is not None
                  else f" The fatigue time was {NOT_RECORDED}.")
     if f.step_protocol():
+        corrected = any(f.result(fid, "ucrit") is not None for fid in f.fish_ids)
+        on_set = any(f.result(fid, "ucrit_set") is not None for fid in f.fish_ids)
+        given = ("it is given on blocking-corrected and on set speeds" if corrected and on_set
+                 else "it is given on blocking-corrected speeds" if corrected
+                 else "it is given on set speeds only (no blocking-corrected value)" if on_set
+                 else "it could not be calculated for this session (see flags)")
         text += (" Ucrit was calculated after Brett (1964) as Ucrit = U_i + U_ii · (t_i / t_ii), where U_i is the highest "
                  "speed completed, U_ii the speed increment, t_i the time swum at the speed of fatigue and t_ii the step "
-                 "duration; it is given on blocking-corrected and on set speeds.")
+                 f"duration; {given}.")
     return text
 
 
@@ -1484,8 +1492,8 @@ def _session_figures(f: _Facts, number_from: int = 1) -> list[ReportFigure]:
     for fid in f.fish_ids:
         fits = f.fits(fid)
         own_steps = f.steps[f.steps["fish_id"].astype(str) == str(fid)] if not f.steps.empty else f.steps
-        if own_steps.empty:
-            continue
+        if own_steps.empty or not own_steps["mo2_mg_kg_h"].notna().any():
+            continue  # no MO2 at any speed: nothing to draw against speed
         best = getattr(fits, "best", None)
         cap = (f"Fish {fid}: MO₂ of single accepted phases (grey) and step means ± SD (black) against blocking-corrected "
                "speed, with the exponential (solid) and power (dashed) fits and their 95 % bands")
@@ -1951,14 +1959,17 @@ def _checklist_blocks(checklist: pd.DataFrame, counts: bool = False) -> list[dic
         if part.empty:
             continue
         blocks.append({"kind": "h3", "text": guideline})
+        if guideline == KILLEN:
+            blocks.append(_box("warning", "Item list from memory", [CHECKLIST_NOTES[KILLEN]]))
+        note = "" if guideline == KILLEN else CHECKLIST_NOTES[guideline]
         if counts:
             cols = [("No.", "number", str), ("Item", "item", str)] + [(s, s, _int_fmt) for s in STATES]
-            blocks.append(_display(part, cols, "Number of sessions in each state.", note=CHECKLIST_NOTES[guideline]))
+            blocks.append(_display(part, cols, "Number of sessions in each state.", note=note))
         else:
             blocks.append(_display(part, [("No.", "number", str), ("Topic", "topic", str), ("Item", "item", str),
                                           ("State", "state", str), ("In this session", "detail", str),
                                           ("From", "where", str)],
-                                   "", note=CHECKLIST_NOTES[guideline], state_columns=["State"], nowrap=["No.", "State"]))
+                                   "", note=note, state_columns=["State"], nowrap=["No.", "State"]))
     return blocks
 
 
