@@ -36,20 +36,19 @@ def _where(row: pd.Series) -> str:
     return ", ".join(parts) or str(row.get("scope") or "session")
 
 
-def _table(part: pd.DataFrame) -> pd.DataFrame:
-    rows = []
-    for _, row in part.iterrows():
-        rule = RULES.get(row["code"])
-        rows.append({
-            "Where": _where(row),
-            "Rule": rule.title if rule else row["code"],
-            "Found": row["message"],
-            "Why it matters": rule.protects if rule else "",
-            "What to do": row["advice"],
-            "Source": row["source"],
-            "Code": row["code"],
-        })
-    return pd.DataFrame(rows)
+def _by_rule(part: pd.DataFrame) -> None:
+    """One bordered block per rule: what it protects, its source, what to do, and where it failed."""
+    for code, rows in part.groupby("code", sort=False):
+        rule = RULES.get(code)
+        with st.container(border=True):
+            st.markdown(f"**{rule.title if rule else code}** · {len(rows)} flag(s) · `{code}`")
+            if rule:
+                st.markdown(f"*Why it matters:* {rule.protects}  \n*What to do:* {rule.advice}  \n"
+                            f"*Source:* {rule.source}" + (f" · threshold: lab setting `{rule.setting}`" if rule.setting else ""))
+            st.dataframe(
+                pd.DataFrame({"Where": [_where(r) for _, r in rows.iterrows()], "Found": rows["message"].tolist()}),
+                hide_index=True, width="stretch", height=min(38 + 35 * len(rows), 300),
+            )
 
 
 if flags is None or flags.empty:
@@ -65,7 +64,7 @@ else:
         st.subheader("Animal welfare")
         st.error(f"{len(welfare)} flag(s) concern the fish's welfare. Check them against the approved protocol.",
                  icon=":material/pets:")
-        st.dataframe(_table(welfare), hide_index=True, width="stretch")
+        _by_rule(welfare)
     rest = flags[~flags["welfare"].astype(bool)]
     for sev in SEVERITIES:
         part = rest[rest["severity"] == sev]
@@ -73,7 +72,7 @@ else:
             continue
         title, box = SEVERITY_WORDS[sev]
         st.subheader(f"{title} ({len(part)})")
-        st.dataframe(_table(part), hide_index=True, width="stretch")
+        _by_rule(part)
 
     phase_flags = flags[flags["cycle"].notna() & flags["channel"].notna()]
     if not phase_flags.empty:

@@ -365,6 +365,30 @@ def _section(doc: str, name: str) -> str:
     return match.group(1).strip() if match else ""
 
 
+def oxygen_floor_mg_l(session: Session, settings: LabSettings) -> float | None:
+    """The lab's oxygen floor in mg/L at the session's water conditions (None if it cannot be had)."""
+    try:
+        import numpy as np
+
+        from swimlab import oxygen
+
+        w = session.water
+        value = oxygen.convert(settings.oxygen_floor_pct_air_sat, "% air saturation", "mg/L",
+                               w.temperature_c, w.salinity, w.barometric_pressure_kpa * 1000.0)
+        return float(np.asarray(value))
+    except (ImportError, AttributeError, ValueError, TypeError):
+        return None
+
+
+MEASURE_COLUMNS = {
+    "fish_id": "Fish", "channel": "Chamber", "cycle": "Cycle", "step": "Step", "start_s": "Start [s]",
+    "end_s": "End [s]", "n_points": "Readings", "r2": "R²", "relative_se": "Relative SE [-]",
+    "mo2_mg_kg_h": "MO2 [mg O2/kg/h]", "accepted": "Accepted", "rejected_by": "Rejected by",
+    "excluded": "Excluded", "exclusion_reason": "Reason", "used": "Used",
+}
+"""Columns of the measure-phase table shown on the pages, with their headers."""
+
+
 def show_figure(fig, *, key: str, name: str, **kwargs):
     """Draw a plotly figure; its camera button saves an SVG named after the figure."""
     from swimlab.plots import SVG_CONFIG

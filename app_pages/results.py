@@ -4,11 +4,10 @@ from __future__ import annotations
 
 import json
 
-import pandas as pd
 import streamlit as st
 
 from app_pages import common
-from swimlab import plots
+from swimlab import plots, ui_forms
 
 common.page_header(
     "Results",
@@ -32,34 +31,24 @@ if len(welfare):
     st.page_link(common.PAGE_FILES["checks"], label="Go to Checks", icon=":material/rule:")
 
 # --- headline values ------------------------------------------------------------------------
-QUANTITY_NAMES = {
-    "ucrit": "Ucrit", "ucrit_bl": "Ucrit", "ucrit_set": "Ucrit (set speed)", "smr": "SMR",
-    "smr_quantile": "SMR (low quantile)", "smr_mlnd": "SMR (MLND)", "mmr": "MMR", "aas": "Absolute aerobic scope",
-    "fas": "Factorial aerobic scope", "uopt": "Uopt", "uopt_bl": "Uopt", "cotmin": "COTmin",
-}
 results = analysis.results
 mine = results[results["fish_id"].astype(str) == str(fish_id)] if not results.empty else results
+quantities = set(mine["quantity"]) if not mine.empty else set()
+if session.protocol.type in ("step_ucrit", "repeat_ucrit") and "ucrit" not in quantities:
+    st.info("No Ucrit: it needs the time the fish met the fatigue criterion (Set-up › Protocol › Fatigue at) "
+            "within the last step swum. See Checks.")
 if mine.empty:
     st.info("No derived values yet: they need accepted measure phases at several speeds.")
 else:
-    headline = [q for q in ("ucrit", "smr", "mmr", "aas", "uopt", "cotmin") if q in set(mine["quantity"])]
+    headline = [q for q in ("ucrit", "smr", "mmr", "aas", "uopt", "cotmin") if q in quantities]
     cols = st.columns(max(len(headline), 1))
     for col, q in zip(cols, headline, strict=False):
         row = mine[mine["quantity"] == q].iloc[0]
-        value = row["value"]
-        text = "–" if pd.isna(value) else f"{value:.3g}"
-        interval = "" if pd.isna(row["ci_low"]) else f"95 % CI {row['ci_low']:.3g}–{row['ci_high']:.3g}"
-        col.metric(f"{QUANTITY_NAMES.get(q, q)} [{row['unit']}]", text, help=f"{row['method']}. {interval}".strip())
-    table = mine.assign(quantity=mine["quantity"].map(lambda q: QUANTITY_NAMES.get(q, q)))
-    st.dataframe(
-        table.drop(columns=["fish_id"]), hide_index=True, width="stretch",
-        column_config={
-            "quantity": "Quantity", "value": st.column_config.NumberColumn("Value", format="%.4g"),
-            "unit": "Unit", "method": "Method",
-            "ci_low": st.column_config.NumberColumn("95 % CI low", format="%.4g"),
-            "ci_high": st.column_config.NumberColumn("95 % CI high", format="%.4g"), "note": "Note",
-        },
-    )
+        shown = ui_forms.results_display(mine[mine["quantity"] == q]).iloc[0]
+        interval = f"95 % interval {shown['95 % interval']}. " if shown["95 % interval"] else ""
+        col.metric(shown["Quantity"], shown["Value"] or "–", help=f"{interval}{row['method']}.")
+        col.caption(shown["Unit"])
+    st.dataframe(ui_forms.results_display(mine), hide_index=True, width="stretch")
 
 # --- step table -----------------------------------------------------------------------------
 st.subheader("Steps")

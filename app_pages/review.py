@@ -6,7 +6,7 @@ import pandas as pd
 import streamlit as st
 
 from app_pages import common
-from swimlab import plots
+from swimlab import plots, ui_forms
 from swimlab.errors import ConflictError, InputError, PermissionDeniedError
 
 common.page_header(
@@ -46,8 +46,9 @@ if chosen is not None:
                 nwel = int(flags["welfare"].astype(bool).sum())
                 if nwel:
                     st.error(f"{nwel} welfare flag(s).", icon=":material/pets:")
-                st.dataframe(flags[["severity", "where", "message", "advice"]], hide_index=True, width="stretch",
-                             height=360)
+                st.dataframe(flags[["severity", "where", "message", "advice"]].rename(
+                    columns={"severity": "Severity", "where": "Where", "message": "Found", "advice": "What to do"}),
+                    hide_index=True, width="stretch")
         with right:
             fish_id = session.fish[0].fish_id
             fits = analysis.fits.get(fish_id) if isinstance(analysis.fits, dict) else None
@@ -55,12 +56,15 @@ if chosen is not None:
                                key="rv_fig_mo2", name=f"speed-mo2-{fish_id}")
         if analysis.traces:
             logged = next(iter(analysis.traces.values()))
+            floor = common.oxygen_floor_mg_l(session, common.effective_settings(book, session.to_json_dict()))
             common.show_figure(plots.trace_figure(logged.time_s, analysis.concentration, unit="mg/L",
-                                                  phases=analysis.phases, measure=analysis.measure,
+                                                  phases=analysis.phases, measure=analysis.measure, floor=floor,
                                                   title=f"Oxygen – {session.title}"),
                                key="rv_fig_trace", name=f"oxygen-{session.session_id}")
         if not analysis.results.empty:
-            st.dataframe(analysis.results, hide_index=True, width="stretch")
+            shown = ui_forms.results_display(analysis.results)
+            shown.insert(0, "Fish", analysis.results["fish_id"].tolist())
+            st.dataframe(shown, hide_index=True, width="stretch")
 
     st.subheader("Decision")
     cols = st.columns([1, 2])
@@ -122,7 +126,7 @@ if trail_id:
     for row in trail.iloc[::-1].itertuples(index=False):
         changes = row.changes or []
         fields = ", ".join(str(c.get("field")) for c in changes[:6]) + (" …" if len(changes) > 6 else "")
-        line = f"**{row.at}** — **{row.who}** · {row.action}"
+        line = f"**{ui_forms.when_text(row.at)}** — **{row.who}** · {row.action}"
         if row.version is not None and not pd.isna(row.version):
             line += f" · version {int(row.version)}"
         if row.reason:

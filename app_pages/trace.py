@@ -58,97 +58,104 @@ st.subheader("Logger file")
 attached = [ref for ref in (data.get("raw_files") or []) if ref.get("role", "trial") == "trial"]
 if attached:
     ref = attached[0]
-    st.caption(f"Attached: **{ref.get('name')}** (SHA-256 {ref.get('sha256', '')[:12]}…). "
-               "Upload another file to replace it; the stored file is never changed.")
-upload = st.file_uploader("Oxygen logger export (text: CSV, TSV or similar)", key="tr_upload")
+    st.markdown(f"Attached: **{ref.get('name')}** (SHA-256 `{ref.get('sha256', '')[:12]}…`). "
+                "Upload another file below to replace it; a stored file is never changed.")
+pending = st.session_state.get("tr_upload")
+attached_shas = {ref.get("sha256") for ref in attached}
+fresh = pending is not None and hashlib.sha256(pending.getvalue()).hexdigest() not in attached_shas
+importer = st.expander("Import a logger file" if not attached else "Replace the logger file or change its mapping",
+                       expanded=not attached or fresh)
+with importer:
+    upload = st.file_uploader("Oxygen logger export (text: CSV, TSV or similar)", key="tr_upload")
 if upload is not None:
-    raw = upload.getvalue()
-    sha = hashlib.sha256(raw).hexdigest()
-    try:
-        with st.spinner("Reading the file's layout…"):
-            sniffed, guessed, fingerprint = _sniff(raw, upload.name)
-    except ImportError as exc:
-        st.error(f"Logger files cannot be read in this installation: {exc}")
-        st.stop()
-    except (InputError, ValueError, UnicodeError) as exc:
-        st.error(f"The file {upload.name!r} could not be read: {exc}")
-        st.stop()
-    remembered = None
-    try:
-        remembered = book.recall_mapping(fingerprint)
-    except (InputError, ValueError):
-        remembered = None
-    base = dict(remembered or guessed)
-    if remembered:
-        st.success("These columns were seen before: the mapping saved for them is used. Check it below.")
-    else:
-        st.info("The mapping below is a guess from the column names. Check it before attaching the file.")
-    marks = {",": "comma", ";": "semicolon", "\t": "tab", " ": "space", ".": "point", "|": "bar"}
-    st.caption(
-        f"Read as: encoding {sniffed.encoding}; columns separated by {marks.get(sniffed.delimiter, repr(sniffed.delimiter))}; "
-        f"decimal {marks.get(sniffed.decimal, repr(sniffed.decimal))}; column names on line {int(sniffed.header_line) + 1}."
-    )
-    preview = sniffed.preview if isinstance(sniffed.preview, pd.DataFrame) else pd.DataFrame(sniffed.preview)
-    st.markdown("**First rows of the file**")
-    st.dataframe(preview.head(8), hide_index=True, width="stretch")
-
-    cols = st.columns([3, 1])
-    with cols[0]:
-        st.markdown("**Column mapping** — which logger column holds what")
-        edited = st.data_editor(
-            ui_forms.mapping_frame(base, sniffed.columns), key=f"tr_map_{sha[:12]}", hide_index=True,
-            num_rows="dynamic", width="stretch",
-            column_config={
-                "Role": st.column_config.SelectboxColumn("Role", options=list(ui_forms.MAPPING_ROLES), required=True),
-                "Chamber": st.column_config.TextColumn("Chamber", help="Oxygen channel (A, B, …) for oxygen and temperature columns"),
-                "Logger column": st.column_config.SelectboxColumn("Logger column", options=[str(c) for c in sniffed.columns], required=True),
-                "In file": st.column_config.CheckboxColumn("In file", disabled=True),
-            },
-        )
-    with cols[1]:
-        units = _oxygen_units()
-        current_unit = base.get("oxygen_unit") or units[0]
-        unit = st.selectbox("Oxygen unit in the file", units, key=f"tr_unit_{sha[:12]}",
-                            index=units.index(current_unit) if current_unit in units else 0)
-    mapping, mapping_problems = ui_forms.mapping_from_frame(edited.drop(columns=["In file"], errors="ignore"),
-                                                            {**base, "oxygen_unit": unit})
-    for problem in mapping_problems:
-        st.error(f"Column mapping, {problem}")
-    if not mapping_problems:
+    with importer:
+        raw = upload.getvalue()
+        sha = hashlib.sha256(raw).hexdigest()
         try:
-            with st.spinner("Reading every line of the file…"):
-                logged = _read(raw, upload.name, mapping)
-        except (InputError, ValueError) as exc:
-            logged = None
-            st.error(f"The file {upload.name!r} could not be read with this mapping: {exc}")
-        if logged is not None:
-            duration_h = (float(np.nanmax(logged.time_s)) - float(np.nanmin(logged.time_s))) / 3600.0 if len(logged.time_s) else 0.0
-            st.markdown(
-                f"{len(logged.time_s):,} readings over {duration_h:.2f} h; oxygen channels "
-                f"{', '.join(sorted(logged.oxygen))} in {logged.oxygen_unit}; "
-                f"{len(logged.glitches)} glitch(es) found and handled."
+            with st.spinner("Reading the file's layout…"):
+                sniffed, guessed, fingerprint = _sniff(raw, upload.name)
+        except ImportError as exc:
+            st.error(f"Logger files cannot be read in this installation: {exc}")
+            st.stop()
+        except (InputError, ValueError, UnicodeError) as exc:
+            st.error(f"The file {upload.name!r} could not be read: {exc}")
+            st.stop()
+        remembered = None
+        try:
+            remembered = book.recall_mapping(fingerprint)
+        except (InputError, ValueError):
+            remembered = None
+        base = dict(remembered or guessed)
+        if remembered:
+            st.success("These columns were seen before: the mapping saved for them is used. Check it below.")
+        else:
+            st.info("The mapping below is a guess from the column names. Check it before attaching the file.")
+        marks = {",": "comma", ";": "semicolon", "\t": "tab", " ": "space", ".": "point", "|": "bar"}
+        st.caption(
+            f"Read as: encoding {sniffed.encoding}; columns separated by {marks.get(sniffed.delimiter, repr(sniffed.delimiter))}; "
+            f"decimal {marks.get(sniffed.decimal, repr(sniffed.decimal))}; column names on line {int(sniffed.header_line) + 1}."
+        )
+        preview = sniffed.preview if isinstance(sniffed.preview, pd.DataFrame) else pd.DataFrame(sniffed.preview)
+        st.markdown("**First rows of the file**")
+        st.dataframe(preview.head(8), hide_index=True, width="stretch")
+
+        cols = st.columns([3, 1])
+        with cols[0]:
+            st.markdown("**Column mapping** — which logger column holds what")
+            edited = st.data_editor(
+                ui_forms.mapping_frame(base, sniffed.columns), key=f"tr_map_{sha[:12]}", hide_index=True,
+                num_rows="dynamic", width="stretch",
+                column_config={
+                    "Role": st.column_config.SelectboxColumn("Role", options=list(ui_forms.MAPPING_ROLES), required=True),
+                    "Chamber": st.column_config.TextColumn("Chamber", help="Oxygen channel (A, B, …) for oxygen and temperature columns"),
+                    "Logger column": st.column_config.SelectboxColumn("Logger column", options=[str(c) for c in sniffed.columns], required=True),
+                    "In file": st.column_config.CheckboxColumn("In file", disabled=True),
+                },
             )
-            if len(logged.glitches):
-                with st.expander("Import report (glitches)"):
-                    st.dataframe(logged.glitches, hide_index=True, width="stretch")
-            chambers = {f.get("chamber") for f in data.get("fish") or []}
-            missing = sorted(c for c in chambers if c and c not in logged.oxygen)
-            if missing:
-                st.error(f"Fish chamber(s) {missing} have no oxygen column in this mapping; "
-                         f"the mapped chambers are {sorted(logged.oxygen)}.")
-            if st.button("Attach this file to the session", key="tr_attach", type="primary", disabled=bool(missing)):
-                if session is None:
-                    st.error(f"Not attached: the set-up has {len(problems)} problem(s); fix them on the Set-up page first.")
-                else:
-                    stored_sha = book.add_raw_file(raw, upload.name)
-                    try:
-                        book.remember_mapping(fingerprint, mapping, who=common.user_name() or session.operator or "unnamed")
-                    except (InputError, ValueError) as exc:
-                        st.warning(f"The mapping was not remembered: {exc}")
-                    new = ui_forms.attach_raw_file(data, stored_sha, upload.name, mapping)
-                    if common.persist(book, new, reason=f"attached logger file {upload.name}", raw_files={stored_sha: raw}):
-                        st.success(f"Attached {upload.name!r}.")
-                        st.rerun()
+        with cols[1]:
+            units = _oxygen_units()
+            current_unit = base.get("oxygen_unit") or units[0]
+            unit = st.selectbox("Oxygen unit in the file", units, key=f"tr_unit_{sha[:12]}",
+                                index=units.index(current_unit) if current_unit in units else 0)
+        mapping, mapping_problems = ui_forms.mapping_from_frame(edited.drop(columns=["In file"], errors="ignore"),
+                                                                {**base, "oxygen_unit": unit})
+        for problem in mapping_problems:
+            st.error(f"Column mapping, {problem}")
+        if not mapping_problems:
+            try:
+                with st.spinner("Reading every line of the file…"):
+                    logged = _read(raw, upload.name, mapping)
+            except (InputError, ValueError) as exc:
+                logged = None
+                st.error(f"The file {upload.name!r} could not be read with this mapping: {exc}")
+            if logged is not None:
+                duration_h = (float(np.nanmax(logged.time_s)) - float(np.nanmin(logged.time_s))) / 3600.0 if len(logged.time_s) else 0.0
+                st.markdown(
+                    f"{len(logged.time_s):,} readings over {duration_h:.2f} h; oxygen channels "
+                    f"{', '.join(sorted(logged.oxygen))} in {logged.oxygen_unit}; "
+                    f"{len(logged.glitches)} glitch(es) found and handled."
+                )
+                if len(logged.glitches):
+                    with st.expander("Import report (glitches)"):
+                        st.dataframe(logged.glitches, hide_index=True, width="stretch")
+                chambers = {f.get("chamber") for f in data.get("fish") or []}
+                missing = sorted(c for c in chambers if c and c not in logged.oxygen)
+                if missing:
+                    st.error(f"Fish chamber(s) {missing} have no oxygen column in this mapping; "
+                             f"the mapped chambers are {sorted(logged.oxygen)}.")
+                if st.button("Attach this file to the session", key="tr_attach", type="primary", disabled=bool(missing)):
+                    if session is None:
+                        st.error(f"Not attached: the set-up has {len(problems)} problem(s); fix them on the Set-up page first.")
+                    else:
+                        stored_sha = book.add_raw_file(raw, upload.name)
+                        try:
+                            book.remember_mapping(fingerprint, mapping, who=common.user_name() or session.operator or "unnamed")
+                        except (InputError, ValueError) as exc:
+                            st.warning(f"The mapping was not remembered: {exc}")
+                        new = ui_forms.attach_raw_file(data, stored_sha, upload.name, mapping)
+                        if common.persist(book, new, reason=f"attached logger file {upload.name}", raw_files={stored_sha: raw}):
+                            st.success(f"Attached {upload.name!r}.")
+                            st.rerun()
 
 # --- 2. the trace ---------------------------------------------------------------------------
 if session is None:
@@ -164,15 +171,7 @@ if analysis is None or not analysis.traces:
 
 logged = next(iter(analysis.traces.values()))
 measure = analysis.measure
-floor = None
-try:
-    from swimlab import oxygen
-
-    w = session.water
-    floor = float(np.asarray(oxygen.convert(settings.oxygen_floor_pct_air_sat, "% air saturation", "mg/L",
-                                            w.temperature_c, w.salinity, w.barometric_pressure_kpa * 1000.0)))
-except (ImportError, AttributeError, ValueError, TypeError):
-    floor = None
+floor = common.oxygen_floor_mg_l(session, settings)
 
 st.subheader("Oxygen and phases")
 options = ui_forms.exclusion_options(measure)
@@ -207,16 +206,16 @@ if measure is None or measure.empty:
     st.stop()
 
 st.subheader("Measure phases")
-show = [c for c in ["fish_id", "channel", "cycle", "step", "start_s", "end_s", "n_points", "r2", "relative_se",
-                    "mo2_mg_kg_h", "accepted", "rejected_by", "excluded", "exclusion_reason", "used"] if c in measure]
+show = [c for c in common.MEASURE_COLUMNS if c in measure]
 st.dataframe(
-    measure[show], hide_index=True, width="stretch", height=260,
+    measure[show].rename(columns=common.MEASURE_COLUMNS), hide_index=True, width="stretch", height=260,
     column_config={
-        "start_s": st.column_config.NumberColumn("Start [s]", format="%.0f"),
-        "end_s": st.column_config.NumberColumn("End [s]", format="%.0f"),
-        "r2": st.column_config.NumberColumn("R²", format="%.4f"),
-        "relative_se": st.column_config.NumberColumn("Relative SE [-]", format="%.3f"),
-        "mo2_mg_kg_h": st.column_config.NumberColumn("MO2 [mg O2/kg/h]", format="%.1f"),
+        "Start [s]": st.column_config.NumberColumn(format="%.0f"),
+        "End [s]": st.column_config.NumberColumn(format="%.0f"),
+        "R²": st.column_config.NumberColumn(format="%.4f"),
+        "Relative SE [-]": st.column_config.NumberColumn(format="%.3f"),
+        "MO2 [mg O2/kg/h]": st.column_config.NumberColumn(format="%.1f"),
+        "Step": st.column_config.NumberColumn(help="0: before the first step; −1: after fatigue or the last step"),
     },
 )
 
@@ -247,7 +246,11 @@ if cols[2].button("Exclude", key="tr_exclude", disabled=phase is None):
 exclusions = data.get("exclusions") or []
 if exclusions:
     st.markdown("**Excluded phases**")
-    st.dataframe(pd.DataFrame(exclusions), hide_index=True, width="stretch")
+    shown = pd.DataFrame(exclusions).rename(columns={"channel": "Chamber", "cycle": "Cycle", "reason": "Reason",
+                                                      "by": "By", "at": "When"})
+    if "When" in shown:
+        shown["When"] = shown["When"].map(lambda v: ui_forms.when_text(v) if v else "")
+    st.dataframe(shown, hide_index=True, width="stretch")
     pairs = [(str(e["channel"]), int(e["cycle"])) for e in exclusions]
     cols = st.columns([3, 1])
     back = cols[0].selectbox("Include a phase again", pairs, format_func=lambda p: f"chamber {p[0]}, cycle {p[1]}",
@@ -262,8 +265,8 @@ common.explain(
     "Readings are converted to mg/L with their own temperature. Phases come from the pump signal, "
     "the cycle schedule or the trace's shape (Set-up › Cycle timing). Each measure phase's slope is a "
     "least-squares straight line, accepted on its R², relative standard error and scatter against the "
-    "sensor's noise (lab settings). MO2 = −(slope − background slope) × (respirometer volume − fish "
-    "volume) / fish mass. The plot is drawn from at most "
+    "sensor's noise (lab settings). MO2 is the oxygen decline's slope, less the background slope, times "
+    "the water volume (respirometer less fish) per kilogram of fish. The plot is drawn from at most "
     f"{plots.DEFAULT_MAX_POINTS} points per chamber (MinMax-LTTB downsampling); every reading is used for "
     "the numbers.",
     ["swimlab.trace.fit_slopes", "swimlab.uptake.mo2", "swimlab.trace.concentration_from_trace"],

@@ -128,7 +128,7 @@ def _fit_line_traces(measure: pd.DataFrame, x_scale: float, colours: Mapping[str
             name = f"fit {channel}" + ("" if used else " (not used)")
             traces.append(go.Scatter(
                 x=xs, y=ys, mode="lines+markers", name=name,
-                line={"color": colours.get(str(channel), "#333"), "width": 3 if used else 2,
+                line={"color": _shade(colours.get(str(channel), "#333333"), 0.55), "width": 3.5 if used else 2.5,
                       "dash": "solid" if used else "dot"},
                 marker={"size": 4, "opacity": 0.6},
                 customdata=custom, legendgroup=f"fit-{used}",
@@ -206,7 +206,7 @@ def trace_figure(
         downsampled |= idx.size < t.size
         fig.add_trace(go.Scatter(
             x=t[idx] / x_scale, y=y[idx], mode="lines", name=f"chamber {channel}",
-            line={"color": colours[str(channel)], "width": 1.2},
+            line={"color": _rgba(colours[str(channel)], 0.55), "width": 1.0},
             hovertemplate=f"chamber {channel}<br>%{{x:.2f}}<br>%{{y:.3f}} {unit}<extra></extra>",
         ))
     for line in _fit_line_traces(measure, x_scale, colours, intercept_at_phase_start):
@@ -348,6 +348,13 @@ def _result_value(results: pd.DataFrame | None, fish_id: str, quantity: str) -> 
     if not np.isfinite(value):
         return None
     return value, str(hit["unit"].iloc[0]) if "unit" in hit else ""
+
+
+def _shade(hex_colour: str, factor: float) -> str:
+    """A darker shade of ``hex_colour`` (each channel times ``factor``)."""
+    h = hex_colour.lstrip("#")
+    r, g, b = (int(int(h[i:i + 2], 16) * factor) for i in (0, 2, 4))
+    return f"#{r:02x}{g:02x}{b:02x}"
 
 
 def _rgba(hex_colour: str, alpha: float) -> str:

@@ -541,7 +541,7 @@ def highlight_problems(frame: pd.DataFrame, section: str, locations: Iterable[Pr
             styles.loc[row, :] = PROBLEM_CELL_CSS
         elif column in styles.columns:
             styles.loc[row, column] = PROBLEM_CELL_CSS
-    return frame.style.apply(lambda _: styles, axis=None)
+    return frame.style.apply(lambda _: styles, axis=None).format(na_rep="")
 
 
 # --------------------------------------------------------------------------------------------
@@ -704,3 +704,66 @@ def mapping_from_frame(frame: pd.DataFrame, base: Mapping[str, Any]) -> tuple[di
     if not out["oxygen"]:
         problems.append("Role: at least one oxygen column is required")
     return out, problems
+
+
+# --------------------------------------------------------------------------------------------
+# Result tables as a person reads them
+# --------------------------------------------------------------------------------------------
+
+QUANTITY_NAMES = {
+    "ucrit": "Ucrit", "ucrit_bl": "Ucrit", "ucrit_set": "Ucrit (set speed, uncorrected)", "smr": "SMR",
+    "smr_quantile": "SMR (low quantile)", "smr_mlnd": "SMR (MLND)", "mmr": "MMR",
+    "aas": "Absolute aerobic scope", "fas": "Factorial aerobic scope", "uopt": "Uopt", "uopt_bl": "Uopt",
+    "cotmin": "COTmin",
+}
+"""Names of the result quantities as a person reads them."""
+
+UNIT_NAMES = {
+    "mg O2 kg-1 h-1": "mg O₂/kg/h", "mg O2 kg-1 km-1": "mg O₂/kg/km", "-": "–", "m/s": "m/s",
+    "cm/s": "cm/s", "BL/s": "BL/s",
+}
+"""Units of the result table as a person reads them."""
+
+
+def _significant(value: Any, digits: int = 4) -> str:
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return ""
+    if not math.isfinite(number):
+        return ""
+    return f"{number:.{digits}g}"
+
+
+def results_display(results: pd.DataFrame) -> pd.DataFrame:
+    """Return the results table as text: Quantity, Value, Unit, 95 % interval, Method, Note.
+
+    Missing values and intervals are blank rather than "None" or "nan".
+    """
+    columns = ["Quantity", "Value", "Unit", "95 % interval", "Method", "Note"]
+    if results is None or results.empty:
+        return pd.DataFrame(columns=columns)
+    rows = []
+    for row in results.itertuples(index=False):
+        lo, hi = _significant(getattr(row, "ci_low", None)), _significant(getattr(row, "ci_high", None))
+        note = getattr(row, "note", "")
+        rows.append({
+            "Quantity": QUANTITY_NAMES.get(row.quantity, row.quantity),
+            "Value": _significant(row.value),
+            "Unit": UNIT_NAMES.get(str(row.unit), str(row.unit)),
+            "95 % interval": f"{lo} – {hi}" if lo and hi else "",
+            "Method": str(getattr(row, "method", "") or ""),
+            "Note": "" if note is None or (isinstance(note, float) and math.isnan(note)) else str(note),
+        })
+    return pd.DataFrame(rows, columns=columns)
+
+
+def when_text(iso: Any) -> str:
+    """An ISO 8601 time stamp as "YYYY-MM-DD HH:MM UTC" (the text itself when it is not one)."""
+    try:
+        stamp = dt.datetime.fromisoformat(str(iso))
+    except ValueError:
+        return str(iso)
+    if stamp.tzinfo is not None:
+        stamp = stamp.astimezone(dt.UTC)
+    return stamp.strftime("%Y-%m-%d %H:%M UTC")

@@ -230,7 +230,7 @@ def test_trace_upload_mapping_plot_and_exclusion(lab):
     at = _open(_app(), session.session_id)
     _attach_trace(at, typical_session())
     assert not at.exception, at.exception
-    assert "Attached" in _texts(at.success) or "Attached" in _texts(at.caption)
+    assert "Attached: **kb03_trace.csv**" in _texts(at.markdown)
     stored = lab.get_session(session.session_id)
     assert len(stored.session.raw_files) == 1 and stored.version == 2
     assert stored.session.raw_files[0].mapping["oxygen"] == {"A": "O2 A [% air saturation]"}

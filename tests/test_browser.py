@@ -202,6 +202,10 @@ def test_student_enters_a_trial_and_a_reviewer_approves_it(app_server):
             for column, field in ((0, "fish_id"), (3, "mass_g"), (4, "total_length_cm"), (6, "body_depth_cm"),
                                   (7, "body_width_cm")):
                 edit_cell(page, fish_grid, 0, column, str(new_fish[field]), row_markers=True)
+            # Protocol grid: when the fish met the fatigue criterion (in the 10th step).
+            page.get_by_role("tab", name="Protocol").click()
+            time.sleep(0.5)
+            edit_cell(page, grid_after(page, "Protocol"), 0, 1, "11500", row_markers=False)
             # Trial grid: a title of its own.
             page.get_by_role("tab", name="Trial and water").click()
             time.sleep(0.5)
@@ -247,7 +251,7 @@ def test_student_enters_a_trial_and_a_reviewer_approves_it(app_server):
             goto_page(page, "Results")
             page.wait_for_selector('[data-testid="stPlotlyChart"]')
             body = text_of(page)
-            assert "Ucrit" in body and "SMR" in body and "MMR" in body
+            assert "Ucrit" in body and "SMR" in body and "MMR" in body and "No Ucrit" not in body
             shot(page, "07-results")
             page.get_by_role("button", name="Submit for review").click()
             idle(page)

@@ -270,3 +270,26 @@ def test_exclusion_options_are_sorted_pairs():
     measure = pd.DataFrame({"channel": ["B", "A", "A"], "cycle": [1, 2, 1]})
     assert uf.exclusion_options(measure) == [("A", 1), ("A", 2), ("B", 1)]
     assert uf.exclusion_options(pd.DataFrame()) == []
+
+
+def test_results_display_names_units_and_blank_intervals():
+    results = pd.DataFrame([
+        {"fish_id": "KB-03", "quantity": "smr", "value": 109.4863, "unit": "mg O2 kg-1 h-1",
+         "method": "fit at zero speed", "ci_low": 107.2015, "ci_high": 111.6714, "note": ""},
+        {"fish_id": "KB-03", "quantity": "fas", "value": 3.079, "unit": "-", "method": "MMR / SMR",
+         "ci_low": np.nan, "ci_high": np.nan, "note": np.nan},
+    ])
+    shown = uf.results_display(results)
+    assert shown.to_dict("records") == [
+        {"Quantity": "SMR", "Value": "109.5", "Unit": "mg O₂/kg/h", "95 % interval": "107.2 – 111.7",
+         "Method": "fit at zero speed", "Note": ""},
+        {"Quantity": "Factorial aerobic scope", "Value": "3.079", "Unit": "–", "95 % interval": "",
+         "Method": "MMR / SMR", "Note": ""},
+    ]
+    assert list(uf.results_display(pd.DataFrame()).columns) == ["Quantity", "Value", "Unit", "95 % interval",
+                                                                "Method", "Note"]
+
+
+def test_when_text():
+    assert uf.when_text("2031-06-02T14:31:41.939184+02:00") == "2031-06-02 12:31 UTC"
+    assert uf.when_text("not a time") == "not a time"
