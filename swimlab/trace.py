@@ -894,6 +894,9 @@ def concentration_from_trace(trace_oxygen: Mapping[str, Any], unit: str, tempera
         """Per run of equal temperatures: mg/L per unit, % air saturation per unit, run length."""
         raw = temperature_c.get(channel) if isinstance(temperature_c, Mapping) else temperature_c
         temp = _temperature_for(temperature_c, channel, n)
+        if temp is None:
+            raise InputError(f"converting channel {channel!r} from {source!r} to mg/L needs the water "
+                             f"temperature; none was given", field=f"temperature_c.{channel}")
         key = id(raw) if raw is not None else id(temp)
         if key in cache:
             return cache[key]

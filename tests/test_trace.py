@@ -447,6 +447,11 @@ def test_concentration_refuses_negative_and_impossible_readings():
         trace.concentration_from_trace({"B": np.array([90.0, 400.0])}, "% air saturation", 15.0)
     with pytest.raises(ValueError, match="unit"):
         trace.concentration_from_trace({"B": np.array([90.0])}, "furlongs", 15.0)
+    with pytest.raises(InputError, match="needs the water temperature") as info:
+        trace.concentration_from_trace({"B": np.array([90.0])}, "% air saturation", None)
+    assert info.value.field == "temperature_c.B"
+    with pytest.raises(InputError, match="channel 'B'"):
+        trace.concentration_from_trace({"B": np.array([90.0])}, "% air saturation", 55.0)  # beyond 40 °C
 
 
 # --- flags ------------------------------------------------------------------------------------
