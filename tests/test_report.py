@@ -624,3 +624,14 @@ def test_endurance_protocol_items(trial):
     methods = text(dict(report.methods_paragraphs(endurance, analysis))["Swimming protocol"])
     assert "endurance test was used at 40 cm/s with a time limit of 120 min" in methods
     assert "not a Ucrit" in methods
+
+
+def test_the_offline_check_finds_external_references():
+    # the checker used above must see what a browser would fetch, and not namespace URIs
+    assert external_urls('<img src="https://example.org/a.png">')
+    assert external_urls('<script src="//cdn.example.org/x.js"></script>')
+    assert external_urls('<link href="style.css" rel="stylesheet">')
+    assert external_urls("<style>@import url(http://example.org/a.css);</style>")
+    assert external_urls('<div style="background: url(https://example.org/b.png)"></div>')
+    assert external_urls('<svg xmlns="http://www.w3.org/2000/svg"><use xlink:href="#clip1"/></svg>') == []
+    assert external_urls('<img src="data:image/svg+xml;base64,AAAA">') == []
