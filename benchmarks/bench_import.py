@@ -50,10 +50,11 @@ def make_export(hours: float = 72.0, channels: int = 8, seed: int = 20260302) ->
     return pd.DataFrame(columns).to_csv(index=False).encode("utf-8")
 
 
-def timed(func) -> float:
-    start = time.perf_counter()
+def timed(func) -> tuple[float, float]:
+    """Wall time and process CPU time (all threads) of one call. [s]"""
+    start, start_cpu = time.perf_counter(), time.process_time()
     func()
-    return time.perf_counter() - start
+    return time.perf_counter() - start, time.process_time() - start_cpu
 
 
 def main(argv: list[str] | None = None) -> None:
@@ -79,22 +80,30 @@ def main(argv: list[str] | None = None) -> None:
         "guessed": lambda: read_logger(data, name=name),
     }
     times: dict[str, list[float]] = {key: [] for key in readers}
+    cpu: dict[str, list[float]] = {key: [] for key in readers}
     for _ in range(args.runs):
         for key, func in readers.items():
-            times[key].append(timed(func))
+            wall, used = timed(func)
+            times[key].append(wall)
+            cpu[key].append(used)
     bare = [min(c, a) for c, a in zip(times["c"], times["arrow"], strict=True)]
     med = {key: statistics.median(values) for key, values in times.items()}
+    med_cpu = {key: statistics.median(values) for key, values in cpu.items()}
     ratio = {key: statistics.median(t / b for t, b in zip(times[key], bare, strict=True))
              for key in ("given", "guessed")}
+    bare_cpu = min(med_cpu["c"], med_cpu["arrow"])
 
     print(f"file: {n_rows} rows, {args.channels} oxygen + {args.channels} temperature + pump "
           f"columns, {len(data) / 1e6:.1f} MB; median of {args.runs} interleaved runs")
-    print(f"pandas.read_csv, C engine        {med['c']:8.3f} s")
-    print(f"pandas.read_csv, pyarrow engine  {med['arrow']:8.3f} s")
-    print(f"swimlab read_logger (mapping)    {med['given']:8.3f} s   "
-          f"ratio to the faster bare parse {ratio['given']:5.2f}")
-    print(f"swimlab read_logger (guessed)    {med['guessed']:8.3f} s   "
-          f"ratio to the faster bare parse {ratio['guessed']:5.2f}")
+    print("                                   wall s   ratio    cpu s   ratio")
+    print(f"pandas.read_csv, C engine        {med['c']:8.3f}          {med_cpu['c']:7.3f}")
+    print(f"pandas.read_csv, pyarrow engine  {med['arrow']:8.3f}          {med_cpu['arrow']:7.3f}")
+    for key, label in (("given", "swimlab read_logger (mapping)  "),
+                       ("guessed", "swimlab read_logger (guessed)  ")):
+        print(f"{label}  {med[key]:8.3f}  {ratio[key]:6.2f}  {med_cpu[key]:7.3f}  "
+              f"{med_cpu[key] / bare_cpu:6.2f}")
+    print("wall ratio: median over rounds of swimlab / the faster bare parse of that round; "
+          "cpu ratio: to the lower median CPU of the two bare parses")
 
 if __name__ == "__main__":
     main()
