@@ -2060,19 +2060,22 @@ def study_table(items: Sequence[tuple[Session, Any]]) -> pd.DataFrame:
 
 
 def _spread_table(table: pd.DataFrame) -> pd.DataFrame:
+    """Spread between fish of each derived value, per species (sample SD, ddof = 1)."""
     rows = []
-    for quantity, (column, unit) in _STUDY_QUANTITIES.items():
-        if quantity in ("ucrit_bl", "uopt_bl", "smr_quantile", "smr_mlnd", "ucrit_set"):
-            continue
-        values = table[column].dropna().to_numpy(dtype=float) if column in table else np.array([])
-        if values.size == 0:
-            continue
-        sd = float(values.std(ddof=1)) if values.size > 1 else np.nan
-        mean = float(values.mean())
-        rows.append({"quantity": quantity, "unit": unit, "n_fish": int(values.size), "mean": mean, "sd": sd,
-                     "cv": sd / mean if values.size > 1 and mean != 0 else np.nan,
-                     "min": float(values.min()), "max": float(values.max())})
-    return pd.DataFrame(rows, columns=["quantity", "unit", "n_fish", "mean", "sd", "cv", "min", "max"])
+    species = table["species"].replace("", "species not recorded") if len(table) else pd.Series(dtype=str)
+    for sp, part in table.groupby(species, sort=True):
+        for quantity, (column, unit) in _STUDY_QUANTITIES.items():
+            if quantity in ("ucrit_bl", "uopt_bl", "smr_quantile", "smr_mlnd", "ucrit_set"):
+                continue
+            values = part[column].dropna().to_numpy(dtype=float) if column in part else np.array([])
+            if values.size == 0:
+                continue
+            sd = float(values.std(ddof=1)) if values.size > 1 else np.nan
+            mean = float(values.mean())
+            rows.append({"species": sp, "quantity": quantity, "unit": unit, "n_fish": int(values.size), "mean": mean,
+                         "sd": sd, "cv": sd / mean if values.size > 1 and mean != 0 else np.nan,
+                         "min": float(values.min()), "max": float(values.max())})
+    return pd.DataFrame(rows, columns=["species", "quantity", "unit", "n_fish", "mean", "sd", "cv", "min", "max"])
 
 
 def group_curve_data(items: Sequence[tuple[Session, Any]]) -> pd.DataFrame:
@@ -2202,25 +2205,27 @@ def study_report(items: Sequence[tuple[Session, Any]], *, title: str | None = No
                        "fish": ", ".join(x.fish_id for x in s.fish), "protocol": s.protocol.type,
                        "temperature": s.water.temperature_c} for s, _ in items]),
         [("Session", "session_id", str), ("Title", "title", str), ("Date", "date", str), ("Fish", "fish", str),
-         ("Protocol", "protocol", str), ("Temperature [°C]", "temperature", _num())],
+         ("Protocol", "protocol", str), ("Temperature [°C]", "temperature", format_entered)],
         "Table 1. Sessions of the study."))
 
     results_blocks = [_display(
         table,
-        [("Session", "session_id", str), ("Fish", "fish_id", str), ("Mass [g]", "mass_g", _num()),
-         ("Ucrit [cm/s]", "ucrit_cm_s", _num()), ("Ucrit [BL/s]", "ucrit_bl_s", _num()),
-         ("SMR [mg O₂ kg⁻¹ h⁻¹]", "smr_mg_kg_h", _num()), ("MMR", "mmr_mg_kg_h", _num()),
-         ("AAS", "aas_mg_kg_h", _num()), ("Uopt [cm/s]", "uopt_cm_s", _num()),
+        [("Fish", "fish_id", str), ("Mass\n[g]", "mass_g", format_entered),
+         ("T\n[°C]", "temperature_c", format_entered),
+         ("Ucrit\n[cm/s]", "ucrit_cm_s", _num()), ("Ucrit\n[BL/s]", "ucrit_bl_s", _num()),
+         ("SMR", "smr_mg_kg_h", _num()), ("MMR", "mmr_mg_kg_h", _num()),
+         ("AAS", "aas_mg_kg_h", _num()), ("Uopt\n[cm/s]", "uopt_cm_s", _num()),
          ("Model", "fit_model", str),
          ("Notes", lambda r: "; ".join(x for x in ("fit poorly constrained" if r["fit_poorly_constrained"] else "",
                                                    "Uopt outside tested speeds" if r["uopt_outside_tested"] else "") if x), str)],
-        "Table 2. One row per fish (the full table, with every column, is in the CSV export).")]
+        "Table 2. One row per fish; SMR, MMR and absolute aerobic scope (AAS) in mg O₂ kg⁻¹ h⁻¹. The full table, "
+        "with sessions, methods and every value, is in the CSV export.", nowrap=["Fish"])]
     if not spread.empty:
         results_blocks.append(_display(
-            spread, [("Quantity", lambda r: QUANTITY_LABELS.get(r["quantity"], r["quantity"]), str),
+            spread, [("Species", "species", str), ("Quantity", lambda r: QUANTITY_LABELS.get(r["quantity"], r["quantity"]), str),
                      ("Unit", lambda r: pretty_unit(r["unit"]), str), ("n", "n_fish", _int_fmt), ("Mean", "mean", _num()),
                      ("SD", "sd", _num(2)), ("CV", "cv", _num(2)), ("Min", "min", _num()), ("Max", "max", _num())],
-            "Table 3. Spread between fish."))
+            "Table 3. Spread between fish of one species (SD with n − 1; CV = SD / mean).", nowrap=["Unit"]))
     n_fig = 0
     for species, curve, error in curves:
         results_blocks.append({"kind": "h3", "text": f"Group curve: {species}"})

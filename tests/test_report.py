@@ -543,7 +543,7 @@ def test_study_table_and_group_curve(trial):
     assert len(curve) == 1 and curve["n_fish"].iloc[0] == 3
     # the simulated fish share b = 2.0–2.5 s/m; the population b lies in that neighbourhood
     assert 1.5 < curve["b_s_m"].iloc[0] < 3.0
-    spread = rep.tables()["spread"].set_index("quantity")
+    spread = rep.tables()["spread"].set_index(["species", "quantity"]).loc["Thymallus thymallus"]
     assert spread.loc["ucrit", "n_fish"] == 3
     assert spread.loc["ucrit", "sd"] == pytest.approx(table["ucrit_cm_s"].std(ddof=1))
     cl = rep.checklist
