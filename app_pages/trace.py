@@ -188,9 +188,8 @@ event = common.show_figure(fig, key="tr_chart", name=f"oxygen-{session.session_i
 picked = None
 try:
     for point in (event.selection.get("points") or []) if event is not None else []:
-        custom = point.get("customdata")
-        if custom and custom[0] is not None:
-            picked = (str(custom[0]), int(custom[1]))
+        picked = plots.phase_of_point(point.get("customdata"), list(analysis.concentration))
+        if picked is not None:
             break
 except (AttributeError, TypeError, ValueError):
     picked = None

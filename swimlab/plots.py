@@ -76,26 +76,27 @@ def _phase_band_traces(phases: pd.DataFrame, x_scale: float) -> list[go.Scatter]
         part = phases[phases["phase"] == kind]
         if part.empty:
             continue
-        xs: list[float | None] = []
-        ys: list[float | None] = []
-        text: list[str | None] = []
-        for row in part.itertuples(index=False):
-            s, e = float(row.start_s) / x_scale, float(row.end_s) / x_scale
-            label = f"{kind}, cycle {int(row.cycle)}"
-            xs += [s, s, e, e, s, None]
-            ys += [0, 1, 1, 0, 0, None]
-            text += [label] * 5 + [None]
+        s = part["start_s"].to_numpy(dtype=float) / x_scale
+        e = part["end_s"].to_numpy(dtype=float) / x_scale
+        gap = np.full(s.size, np.nan)
+        xs = np.column_stack([s, s, e, e, s, gap]).ravel().astype(np.float32)
+        ys = np.tile(np.array([0, 1, 1, 0, 0, np.nan], dtype=np.float32), s.size)
         traces.append(go.Scatter(
             x=xs, y=ys, yaxis="y2", mode="lines", fill="toself", fillcolor=colour,
-            line={"width": 0}, name=kind, legendgroup="phases", hoverinfo="text", text=text,
+            line={"width": 0}, name=kind, legendgroup="phases", hoverinfo="name",
             hoveron="fills", showlegend=True,
         ))
     return traces
 
 
 def _fit_line_traces(measure: pd.DataFrame, x_scale: float, colours: Mapping[str, str],
-                     intercept_at_phase_start: bool) -> list[go.Scatter]:
-    """Fitted straight lines of the measure phases, used and not used, with R² on hover."""
+                     intercept_at_phase_start: bool, channel_index: Mapping[str, int]) -> list[go.Scatter]:
+    """Fitted straight lines of the measure phases, used and not used, with R² on hover.
+
+    Each phase is three points (start, middle, end) and a gap. ``customdata`` per point is
+    ``[cycle, r2, mo2_mg_kg_h, channel number]`` (numbers, so the figure stays compact); see
+    :func:`phase_of_point`.
+    """
     if measure is None or measure.empty or "slope_mg_l_s" not in measure:
         return []
     ends_given = {"o2_start_mg_l", "o2_end_mg_l"} <= set(measure.columns)
@@ -108,35 +109,58 @@ def _fit_line_traces(measure: pd.DataFrame, x_scale: float, colours: Mapping[str
         anchor = part["o2_start_mg_l"] if ends_given else part["intercept_mg_l"]
         part = part[np.isfinite(part["slope_mg_l_s"].astype(float)) & np.isfinite(anchor.astype(float))]
         for channel, rows in part.groupby("channel", sort=True):
-            xs: list[float | None] = []
-            ys: list[float | None] = []
-            custom: list[Any] = []
-            for row in rows.itertuples(index=False):
-                s, e = float(row.start_s), float(row.end_s)
-                pts = [s, 0.5 * (s + e), e]
-                xs += [p / x_scale for p in pts] + [None]
-                if ends_given:  # the fitted values at the phase's first and last reading
-                    y0, y1 = float(row.o2_start_mg_l), float(row.o2_end_mg_l)
-                    ys += [y0, 0.5 * (y0 + y1), y1, None]
-                else:
-                    t0 = s if intercept_at_phase_start else 0.0
-                    ys += [float(row.intercept_mg_l) + float(row.slope_mg_l_s) * (p - t0) for p in pts] + [None]
-                mo2 = getattr(row, "mo2_mg_kg_h", np.nan)
-                why = _why_not_used(row) if not used else ""
-                info = (str(channel), int(row.cycle), float(row.r2), float(mo2) if mo2 is not None else np.nan, why)
-                custom += [info] * 3 + [(None,) * 5]
+            s = rows["start_s"].to_numpy(dtype=float)
+            e = rows["end_s"].to_numpy(dtype=float)
+            n = s.size
+            if ends_given:  # the fitted values at the phase's first and last reading
+                y0 = rows["o2_start_mg_l"].to_numpy(dtype=float)
+                y1 = rows["o2_end_mg_l"].to_numpy(dtype=float)
+            else:
+                slope = rows["slope_mg_l_s"].to_numpy(dtype=float)
+                t0 = s if intercept_at_phase_start else np.zeros(n)
+                y0 = rows["intercept_mg_l"].to_numpy(dtype=float) + slope * (s - t0)
+                y1 = y0 + slope * (e - s)
+            gap = np.full(n, np.nan)
+            xs = (np.column_stack([s, 0.5 * (s + e), e, gap]).ravel() / x_scale).astype(np.float32)
+            ys = np.column_stack([y0, 0.5 * (y0 + y1), y1, gap]).ravel().astype(np.float32)
+            mo2 = rows["mo2_mg_kg_h"].to_numpy(dtype=float) if "mo2_mg_kg_h" in rows else np.full(n, np.nan)
+            per_phase = np.column_stack([rows["cycle"].to_numpy(dtype=float), rows["r2"].to_numpy(dtype=float), mo2,
+                                         np.full(n, float(channel_index.get(str(channel), -1)))])
+            custom = np.repeat(per_phase, 4, axis=0).astype(np.float32)
+            custom[3::4] = np.nan
+            extra = {}
+            if not used:
+                why = [_why_not_used(row) for row in rows.itertuples(index=False)]
+                extra["text"] = [t for w in why for t in (w, w, w, "")]
             name = f"fit {channel}" + ("" if used else " (not used)")
             traces.append(go.Scatter(
-                x=xs, y=ys, mode="lines+markers", name=name,
+                x=xs, y=ys, mode="lines+markers", name=name, connectgaps=False,
                 line={"color": _shade(colours.get(str(channel), "#333333"), 0.55), "width": 3.5 if used else 2.5,
                       "dash": "solid" if used else "dot"},
                 marker={"size": 4, "opacity": 0.6},
                 customdata=custom, legendgroup=f"fit-{used}",
-                hovertemplate=("chamber %{customdata[0]}, cycle %{customdata[1]}<br>R² %{customdata[2]:.4f}"
-                               "<br>MO2 %{customdata[3]:.1f} mg O2/kg/h"
-                               + ("" if used else "<br>not used: %{customdata[4]}") + "<extra></extra>"),
+                hovertemplate=(f"chamber {channel}, cycle %{{customdata[0]:.0f}}<br>R² %{{customdata[1]:.4f}}"
+                               "<br>MO2 %{customdata[2]:.1f} mg O2/kg/h"
+                               + ("" if used else "<br>not used: %{text}") + "<extra></extra>"),
+                **extra,
             ))
     return traces
+
+
+def phase_of_point(customdata: Sequence[float] | None, channels: Sequence[str]) -> tuple[str, int] | None:
+    """The (channel, cycle) of a point of a fitted line, from its ``customdata`` (None for other points).
+
+    ``channels`` are the channel labels in the order they were given to :func:`trace_figure`.
+    """
+    if customdata is None or len(customdata) < 4:
+        return None
+    try:
+        cycle, index = float(customdata[0]), float(customdata[3])
+    except (TypeError, ValueError):
+        return None
+    if not (np.isfinite(cycle) and np.isfinite(index)) or not 0 <= int(index) < len(channels):
+        return None
+    return str(channels[int(index)]), int(cycle)
 
 
 def _why_not_used(row: Any) -> str:
@@ -205,11 +229,13 @@ def trace_figure(
         idx = downsample_indices(t, y, max_points)
         downsampled |= idx.size < t.size
         fig.add_trace(go.Scatter(
-            x=t[idx] / x_scale, y=y[idx], mode="lines", name=f"chamber {channel}",
+            x=(t[idx] / x_scale).astype(np.float32), y=y[idx].astype(np.float32), mode="lines",
+            name=f"chamber {channel}",
             line={"color": _rgba(colours[str(channel)], 0.55), "width": 1.0},
             hovertemplate=f"chamber {channel}<br>%{{x:.2f}}<br>%{{y:.3f}} {unit}<extra></extra>",
         ))
-    for line in _fit_line_traces(measure, x_scale, colours, intercept_at_phase_start):
+    index = {str(ch): i for i, ch in enumerate(series)}
+    for line in _fit_line_traces(measure, x_scale, colours, intercept_at_phase_start, index):
         fig.add_trace(line)
     if floor is not None and np.isfinite(floor):
         fig.add_hline(y=floor, line={"color": "#b03a2e", "dash": "dash", "width": 1},
