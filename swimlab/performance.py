@@ -201,7 +201,7 @@ def ucrit(
 
     Notes
     -----
-    Brett (1964), p. 1190 (from memory of the page)::
+    Brett (1964), the formula as it is commonly stated (from memory)::
 
         Ucrit = U_i + (t_i / t_ii) · U_ii
 
@@ -684,12 +684,15 @@ class _PowerProblem:
             jac = self.jacobian(p)[:, free]
             jtj = jac.T @ jac
             grad = jac.T @ r
-            improved = False
+            improved = converged = False
             for _ in range(30):
                 m = jtj + lam * np.diag(np.diag(jtj) + 1e-300)
                 det = m[0, 0] * m[1, 1] - m[0, 1] * m[1, 0]
                 step = np.array([m[1, 1] * -grad[0] + m[0, 1] * grad[1],
                                  m[1, 0] * grad[0] - m[0, 0] * grad[1]]) / det
+                if np.all(np.abs(step) <= 1e-10 * (np.abs(p[free]) + 1e-10)):
+                    converged = True
+                    break
                 trial = p.copy()
                 trial[free] = np.clip(p[free] + step, lower, upper)
                 r_trial = self.residuals(trial)
@@ -699,9 +702,9 @@ class _PowerProblem:
                     lam = max(lam / 3.0, 1e-12)
                     break
                 lam *= 4.0
-            if not improved:
+            if converged or not improved:
                 break
-            done = cost - cost_trial <= 1e-15 * max(cost, 1e-300)
+            done = cost - cost_trial <= 1e-13 * max(cost, 1e-300)
             p, r, cost = trial, r_trial, cost_trial
             if done:
                 break
@@ -1624,9 +1627,9 @@ def efficiency(drag_power_w: Any, net_metabolic_power_w: Any) -> Any:
 
     Notes
     -----
-    η = P_drag / P_met,net (Webb 1975, from memory). Rigid-body drag underestimates the drag of a
-    swimming (undulating) fish, perhaps by a factor of about 3 (Lighthill 1971, from memory), so
-    this ratio is a lower, rigid-body estimate; report it with that label.
+    η = P_drag / P_met,net (Webb 1975, from memory). The drag of a swimming (undulating) fish
+    exceeds that of the rigid, stretched-straight body (Lighthill 1971, from memory), so this
+    ratio is a rigid-body estimate, likely low; report it with that label.
     """
     drag = _validate.positive("drag_power_w", drag_power_w, "W")
     net = _validate.positive("net_metabolic_power_w", net_metabolic_power_w, "W")

@@ -340,18 +340,36 @@ def coverage(model: str, keys, n_rep: int = 50, speeds=SPEEDS_8X3):
 
 def test_interval_coverage_of_smr_and_power_exponent():
     # Acceptance (simulation with known truth): the true SMR (a) and exponent c lie inside their
-    # 95 % intervals near 95 % of the time over 50 seeded replicates (measured: a 0.96, c 0.94;
-    # over 1000 replicates a 0.955, c 0.947, see docs/refs/performance.md). Binomial(50, 0.95)
-    # gives ≥ 44 hits with probability 0.99, so a method near 95 % passes and one at 80 % fails.
-    cover, spread, width = coverage("power", ("a", "c"))
+    # 95 % intervals near 95 % of the time. Over these 100 seeded replicates (8 speeds × 3
+    # phases, 5 % scatter) the measured coverage is a 0.91, c 0.95 (exponential a 0.94,
+    # b 0.93); over 1000 other replicates a 0.937, c 0.946 (docs/refs/performance.md).
+    # Binomial(100, 0.95) gives ≥ 88 hits with probability 0.9985.
+    cover, spread, width = coverage("power", ("a", "c"), n_rep=100)
     for k in ("a", "c"):
         assert cover[k] >= 0.88, (k, cover)
-        # Calibrated, not merely wide: the median width is close to the ±1.96 sd of the
-        # estimates across replicates (a method twice too wide would cover 100 % and fail here).
+        # Calibrated, not merely wide: the median width is close to ±1.96 sd of the estimates
+        # across replicates (measured 0.90 for a, 1.01 for c); intervals twice too wide would
+        # cover 100 % and fail here.
         assert 0.7 < width[k] / (2 * 1.96 * spread[k]) < 1.4, (k, width[k], spread[k])
-    cover_e, spread_e, width_e = coverage("exponential", ("a", "b"))
-    assert cover_e["a"] >= 0.88 and cover_e["b"] >= 0.88
+    cover_e, spread_e, width_e = coverage("exponential", ("a", "b"), n_rep=100)
+    assert cover_e["a"] >= 0.88 and cover_e["b"] >= 0.88, cover_e
     assert 0.7 < width_e["a"] / (2 * 1.96 * spread_e["a"]) < 1.4
+
+
+@pytest.mark.slow
+def test_coverage_study(capsys):
+    # The coverage study behind docs/refs/performance.md at a smaller size: 400 seeded
+    # replicates of the power model, 8 speeds × 3 phases (the exponential's t interval is exact
+    # and checked against statsmodels above). Binomial(400, 0.95) lies in [0.92, 0.98] with
+    # probability 0.99. Prints the figures (run with -m slow -s).
+    lines = []
+    for model, keys in (("power", ("a", "b", "c")),):
+        cover, _, _ = coverage(model, keys, n_rep=400)
+        lines.append(f"{model}: " + ", ".join(f"{k} {v:.3f}" for k, v in cover.items()))
+        for k in keys:
+            assert 0.92 <= cover[k] <= 0.98, (model, k, cover[k])
+    with capsys.disabled():
+        print("\ncoverage of 95 % intervals, 400 replicates:", "; ".join(lines))
 
 
 def test_smr_extrapolated_within_ten_percent_at_three_percent_scatter():
@@ -634,7 +652,7 @@ def test_power_uopt_closed_form_matches_numerical_minimum(a, b, c):
 
 def test_uopt_interval_from_bootstrap_and_no_optimum_case():
     # Simulation with known truth: power curve 80 + 300 U^2.2 has Uopt = (80/(300·1.2))^(1/2.2).
-    # Its bootstrap interval covers the truth in most of 40 seeded replicates (measured 0.93;
+    # Its bootstrap interval covers the truth in most of 40 seeded replicates (measured 38/40;
     # Binomial(40, 0.95) gives ≥ 34 hits with probability 0.99).
     true_uopt = (80 / (300 * 1.2)) ** (1 / 2.2)
     hits = 0
