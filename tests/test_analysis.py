@@ -209,3 +209,11 @@ def test_demo_struggling_trial_has_welfare_flags_first_and_a_kept_exclusion(demo
     excluded = result.measure[result.measure["excluded"]]
     assert list(excluded["cycle"]) == [17]
     assert "struggled" in excluded["exclusion_reason"].iloc[0]
+    # The simulator put two-minute bursts into cycles 14 and 17: neither is used for MO2, and
+    # the curve through the remaining phases recovers the true SMR (a = 75 in the truth file).
+    truth = json.loads((DEMO / "truth" / "bw26-t04-struggling.json").read_text())
+    assert truth["struggling_cycles"] == [14, 17]
+    measure = result.measure.set_index("cycle")
+    assert not measure.loc[[14, 17], "used"].any()
+    assert measure.drop(index=[14, 17]).query("step > 0 and o2_min_pct_air_sat > 80")["used"].all()
+    assert result.result("BW26-T04", "smr") == pytest.approx(truth["mo2_params"][0], rel=0.10)
