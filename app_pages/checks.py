@@ -54,8 +54,8 @@ def _by_rule(part: pd.DataFrame) -> None:
 if flags is None or flags.empty:
     st.success("No rule flagged this session.")
 else:
-    counts = flags["severity"].value_counts()
     welfare = flags[flags["welfare"].astype(bool)]
+    counts = flags[~flags["welfare"].astype(bool)]["severity"].value_counts()  # welfare flags counted once
     cols = st.columns(4)
     cols[0].metric("Welfare", len(welfare))
     for col, sev in zip(cols[1:], SEVERITIES, strict=False):

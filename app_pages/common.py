@@ -139,7 +139,7 @@ def set_work(data: dict[str, Any], *, session_id: str | None, version: int | Non
     st.session_state["app_version"] = version
     st.session_state["app_status"] = status or ("draft" if session_id else None)
     st.session_state["app_return_comment"] = comment or ""
-    st.session_state["app_saved_json"] = json.dumps(data, sort_keys=True, default=str) if session_id else None
+    st.session_state["app_saved_json"] = _canonical_json(data) if session_id else None
     st.session_state["app_gen"] = int(st.session_state.get("app_gen", 0)) + 1
 
 
@@ -155,13 +155,20 @@ def open_stored(book: Any, session_id: str) -> bool:
     return True
 
 
+def _canonical_json(data: Mapping[str, Any]) -> str:
+    """The session as the model writes it (defaults filled in), or the dict itself if it does not validate."""
+    session, _ = validate_session(dict(data))
+    value = session.to_json_dict() if session is not None else data
+    return json.dumps(value, sort_keys=True, default=str)
+
+
 def is_unsaved() -> bool:
     """Whether the working session differs from what the lab book holds."""
     data = work()
     if data is None:
         return False
     saved = st.session_state.get("app_saved_json")
-    return saved is None or saved != json.dumps(data, sort_keys=True, default=str)
+    return saved is None or saved != _canonical_json(data)
 
 
 def validated(data: Mapping[str, Any] | None) -> tuple[Session | None, list]:
@@ -210,7 +217,7 @@ def persist(book: Any, data: dict[str, Any], *, reason: str,
     st.session_state["app_session_id"] = session.session_id
     st.session_state["app_version"] = int(version) if version is not None else None
     st.session_state["app_status"] = st.session_state.get("app_status") or "draft"
-    st.session_state["app_saved_json"] = json.dumps(saved, sort_keys=True, default=str)
+    st.session_state["app_saved_json"] = _canonical_json(saved)
     st.session_state["app_gen"] = gen
     return True
 
@@ -229,7 +236,7 @@ def refresh_status(book: Any) -> None:
     if not is_unsaved():
         st.session_state["app_version"] = stored.version
         st.session_state["app_work"] = stored.session.to_json_dict()
-        st.session_state["app_saved_json"] = json.dumps(st.session_state["app_work"], sort_keys=True, default=str)
+        st.session_state["app_saved_json"] = _canonical_json(st.session_state["app_work"])
 
 
 def require_session() -> dict[str, Any]:

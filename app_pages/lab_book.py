@@ -97,7 +97,7 @@ labels = {row.session_id: f"{row.title} · {row.fish} · {row.status}" for row i
 cols = st.columns([3, 1])
 chosen = cols[0].selectbox("Session", options, format_func=lambda sid: labels.get(sid, sid), key="lb_open_id",
                            index=None, placeholder="choose a session")
-if cols[1].button("Open", key="lb_open", disabled=chosen is None, type="primary"):
+if cols[1].button("Open this session", key="lb_open", disabled=chosen is None, type="primary"):
     if common.open_stored(book, chosen):
         st.switch_page(common.PAGE_FILES["setup"])
 

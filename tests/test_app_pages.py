@@ -140,6 +140,8 @@ def test_setup_shows_grids_with_units_and_the_care_notice(lab):
     assert {"Mass [g]", "Temperature [°C]", "Respirometer volume [L]", "Set speed [cm/s]", "Flush [s]"} <= headers
     assert "Animal care" in _texts(at.warning)
     assert "Every value is valid." in _texts(at.success)
+    assert "unsaved edits" not in _texts(at.markdown)  # the grids give back what the lab book holds
+    assert "There are unsaved edits" not in _texts(at.success)
     assert at.selectbox(key=f"su_ptype_{at.session_state['app_gen']}").value == "step_ucrit"
 
 
@@ -167,6 +169,7 @@ def test_valid_edit_is_saved_as_a_new_version(lab):
     session = _store(lab)
     at = _open(_app(), session.session_id)
     _edit(at, "fish", edited_rows={0: {"Mass [g]": 310.0}})
+    assert "There are unsaved edits." in _texts(at.success)
     at.text_input(key="su_reason").input("re-weighed").run()
     at.button(key="su_save").click().run()
     assert not at.exception
@@ -332,3 +335,26 @@ def test_care_page_shows_the_lab_limits(lab):
     assert "80 % air saturation" in _texts(at.warning)
     limits = at.dataframe[0].value
     assert "Oxygen floor" in set(limits["Limit"])
+
+
+DEMO_DIR = ROOT / "demo_sessions"
+DEMO_BUNDLES = sorted(p.name for p in DEMO_DIR.glob("*") if (p / "session.json").is_file()) if DEMO_DIR.is_dir() else []
+
+
+@pytest.mark.slow
+@pytest.mark.skipif(not DEMO_BUNDLES, reason="no demo bundles in demo_sessions/")
+def test_every_demo_session_opens_on_every_page(lab, monkeypatch):
+    monkeypatch.setenv("SWIMLAB_DEMO_DIR", str(DEMO_DIR))
+    at = _app()
+    table = lab.list_sessions()
+    assert len(table) == len(DEMO_BUNDLES)
+    for session_id in table["session_id"]:
+        at.switch_page("app_pages/lab_book.py").run()
+        _open(at, session_id)
+        assert "unsaved edits" not in _texts(at.markdown)
+        for page in ("trace", "checks", "results"):
+            at.switch_page(f"app_pages/{page}.py").run()
+            assert not at.exception, (session_id, page, at.exception)
+            failures = [e.value for e in at.error if "welfare" not in e.value]  # welfare flags are shown as errors
+            assert not failures, (session_id, page, failures)
+        assert len(at.get("plotly_chart")) == 2

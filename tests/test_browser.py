@@ -105,7 +105,7 @@ def goto_page(page, title: str) -> None:
 
 
 def choose(page, label: str, option_text: str | None = None) -> None:
-    box = page.get_by_role("combobox", name=label)
+    box = page.get_by_role("combobox", name=label, exact=True)
     box.click()
     if option_text:
         box.fill(option_text)
