@@ -755,3 +755,16 @@ def test_group_curve_bad_tables():
     assert info.value.row == 5 and info.value.column == "mo2_mg_kg_h"
     with pytest.raises(InputError, match="at least two"):
         perf.group_curve(table[table["fish_id"] == "F01"])
+
+
+def test_efficiency_with_rigid_body_drag_power_is_plausible():
+    # Cross-check with swimlab.hydrodynamics.drag_power for an invented 0.30 m, 0.30 kg fish at
+    # 0.6 m/s in fresh water at about 15 °C (ρ 999.1 kg/m³, ν 1.14e-6 m²/s), net MO2 from the
+    # curve 80 e^(2U). Overall swimming efficiencies of fish are of order 0.1–0.2 (Webb 1975,
+    # from memory); the bounds below only catch a unit slip of 10× or more.
+    from swimlab import hydrodynamics
+
+    drag = hydrodynamics.drag_power(0.6, 0.30, 0.06, 0.035, 999.1, 1.14e-6)
+    net = perf.metabolic_power_w(80 * math.exp(2.0 * 0.6) - 80, 0.30)
+    eta = perf.efficiency(drag, net)
+    assert 0.02 < eta < 0.6
