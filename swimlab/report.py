@@ -731,11 +731,14 @@ def _m_background(f: _Facts) -> str:
 
 def _m_slopes(f: _Facts) -> str:
     st = f.settings
-    text = ("The oxygen slope of each measure phase was fitted by ordinary least squares. A phase was accepted when "
-            f"the fit's R² was at least {format_entered(st.r2_min)}, the phase held at least {format_entered(st.min_points_per_phase)} "
-            f"readings and the slope's standard error was at most {format_entered(st.slope_relative_se_max * 100, '%')} "
-            f"of the slope. Phases whose residual standard deviation exceeded {format_entered(st.noise_ratio_max)} times the "
-            "sensor noise, whose decline was curved, or whose temperature changed by more than "
+    text = ("The oxygen slope of each measure phase was fitted by ordinary least squares, after every reading had been "
+            "converted to concentration at its own logged temperature. A phase was accepted when it held at least "
+            f"{format_entered(st.min_points_per_phase)} readings, the slope's standard error was at most "
+            f"{format_entered(st.slope_relative_se_max * 100, '%')} of the slope, and either the fit's R² was at least "
+            f"{format_entered(st.r2_min)} or the residual standard deviation was at most {format_entered(st.noise_ratio_max)} "
+            f"times the sensor's noise ({format_entered(st.sensor_noise_mg_l, 'mg/L')}); R² alone was not used because it "
+            "rejects phases whose total decline is small against the sensor noise. Phases whose residual scatter exceeded "
+            "that multiple of the noise, whose decline was curved, or whose temperature changed by more than "
             f"{format_entered(st.temperature_drift_phase_max_c, '°C')} were flagged for review.")
     counts = f.phase_counts()
     if counts["total"]:
@@ -1001,7 +1004,8 @@ def reporting_checklist(session: Session, analysis: Any) -> pd.DataFrame:
         + ("" if st.reference_mass_kg is None else f", scaled to {format_entered(st.reference_mass_kg, 'kg')} with b = {st.mass_exponent:g}"),
         "settings.fish_density_kg_m3, settings.reference_mass_kg, settings.mass_exponent")
     add(KILLEN, "K20", "Analysis", "Criteria for accepting slopes (e.g. R² threshold)", "stated",
-        f"R² ≥ {st.r2_min:g}, ≥ {format_entered(st.min_points_per_phase)} readings, SE ≤ {st.slope_relative_se_max * 100:g} % of slope",
+        f"≥ {format_entered(st.min_points_per_phase)} readings, SE ≤ {st.slope_relative_se_max * 100:g} % of slope, and "
+        f"R² ≥ {st.r2_min:g} or residual SD ≤ {st.noise_ratio_max:g} × sensor noise",
         "settings.r2_min, settings.min_points_per_phase, settings.slope_relative_se_max")
     smr_rows = f.results[f.results["quantity"] == "smr"] if not f.results.empty else f.results
     add(KILLEN, "K21", "Analysis", "How SMR was estimated",
