@@ -113,6 +113,24 @@ def build_parser() -> argparse.ArgumentParser:
     cmd.set_defaults(run=_analyse)
 
     cmd = commands.add_parser(
+        "report",
+        help="write a methods-and-results report of a session",
+        description="Write the report of a session from a bundle or from the lab book: methods "
+        "filled from the recorded settings, reporting checklist, results, figures, flags and "
+        "sign-off, as self-contained HTML or printable PDF.",
+    )
+    source = cmd.add_mutually_exclusive_group(required=True)
+    source.add_argument("bundle", metavar="BUNDLE_PATH", nargs="?", help="bundle folder or .zip")
+    source.add_argument("--session", metavar="ID", help="a session in the lab book")
+    cmd.add_argument("--out", metavar="FILE", required=True, help="report file to write (.html or .pdf)")
+    cmd.add_argument("--format", choices=("html", "pdf"), default=None,
+                     help="report format (default: from the file's ending)")
+    cmd.add_argument("--page-size", choices=("A4", "Letter"), default="A4", help="paper size of a PDF")
+    cmd.add_argument("--no-figures", action="store_true",
+                     help="leave figures out (quick draft; figures need Chromium)")
+    cmd.set_defaults(run=_report)
+
+    cmd = commands.add_parser(
         "list",
         help="list the sessions in the lab book",
         description="List the sessions in the lab book, most recently changed first.",
@@ -248,6 +266,33 @@ def _result_lines(result) -> list[str]:
         where = getattr(row, "where", "") or "session"
         lines.append(f"  flag {row.severity}: {row.code} at {where} — {getattr(row, 'message', '')}")
     return lines
+
+
+def _report(args: argparse.Namespace) -> int:
+    status = audit = lab_settings = None
+    if args.session:
+        with _open_book(args) as book:
+            status = book.get_session(args.session)
+            raw = book.raw_files_of(status.session)
+            audit = book.audit_trail(args.session)
+            lab_settings = book.get_lab_setting_overrides()
+        session = status.session
+    else:
+        from swimlab.io.bundle import read_bundle
+
+        contents = read_bundle(args.bundle)
+        session, raw = contents.session, contents.raw_files
+    fmt = args.format or ("pdf" if str(args.out).lower().endswith(".pdf") else "html")
+    from swimlab.analysis import analyse
+    from swimlab.report import write_report
+
+    result = analyse(session, raw, lab_settings=lab_settings)
+    path = write_report(
+        session, result, args.out, fmt=fmt, status=status, audit=audit,
+        page_size=args.page_size, figures=not args.no_figures,
+    )
+    print(f"wrote the {fmt.upper()} report of session {session.session_id} ({session.title}) to {path}")
+    return EXIT_OK
 
 
 def _list(args: argparse.Namespace) -> int:

@@ -317,3 +317,20 @@ def test_analyse_prints_the_results_of_a_demo_session(capsys, tmp_path):
         assert f"BW26-T01  {quantity} " in out
     results = pd.read_csv(tmp_path / "out" / "results.csv")
     assert set(results["quantity"]) >= {"ucrit", "ucrit_set", "smr", "mmr"}
+
+
+def test_report_writes_a_self_contained_html_report(capsys, tmp_path):
+    demo = Path(__file__).resolve().parents[1] / "demo_sessions" / "bw26-t03-large-fish"
+    out = tmp_path / "report.html"
+    code, printed, err = run(capsys, "report", str(demo), "--out", str(out), "--no-figures")
+    assert (code, err) == (0, "")
+    assert "HTML report" in printed
+    html = out.read_text(encoding="utf-8")
+    assert "BW26-T03" in html and "Bell" in html  # the fish, and the blocking source in the methods
+    assert "http://" not in html and "https://" not in html.replace("https://doi.org", "")
+
+
+def test_report_of_a_missing_bundle_is_one_line_on_stderr(capsys, tmp_path):
+    code, _, err = run(capsys, "report", str(tmp_path / "nothing"), "--out", str(tmp_path / "r.html"))
+    assert code == 2
+    assert err.count("\n") == 1 and "Traceback" not in err
