@@ -598,7 +598,7 @@ def _performance(session, settings, fish_table, steps_sched, steps, measure, win
                 note=f"no {settings.mmr_window_s:g} s window had a slope with relative SE ≤ "
                 f"{settings.slope_relative_se_max:g}; whole phases used (this underestimates a short peak)")
             mmr_value = mmr.value
-        if smr_value is not None and mmr_value is not None:
+        if smr_value is not None and mmr_value is not None and mmr_value >= smr_value:
             aas, fas = performance.aerobic_scope(smr_value, mmr_value)
             add(fid, "aas", aas, "mg O2 kg-1 h-1", "MMR − SMR")
             add(fid, "fas", fas, "-", "MMR / SMR")
@@ -625,7 +625,10 @@ def _performance(session, settings, fish_table, steps_sched, steps, measure, win
                         mo2_steps[ok][above] - smr_value, mass_kg, settings.oxycaloric_j_per_mg_o2))
                     steps.loc[idx_above, "net_metabolic_power_mw"] = net_w * 1e3
                     drag_w = steps.loc[idx_above, "drag_power_mw"].to_numpy(dtype=float) * 1e-3
-                    steps.loc[idx_above, "efficiency"] = np.asarray(performance.efficiency(drag_w, net_w))
+                    has_drag = np.isfinite(drag_w) & (drag_w > 0)
+                    if has_drag.any():
+                        steps.loc[idx_above[has_drag], "efficiency"] = np.asarray(
+                            performance.efficiency(drag_w[has_drag], net_w[has_drag]))
         if best is not None:
             tested = (float(np.nanmin(u)), float(np.nanmax(u)))
             uopt = performance.optimal_speed(best, tested_range=tested)
