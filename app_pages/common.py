@@ -301,9 +301,17 @@ def analysis_for(book: Any, session: Session):
 
 
 def page_header(title: str, purpose: str) -> None:
-    """Title and one-line purpose of a page, plus the open session's name."""
+    """Title and one-line purpose of a page, and the message left by the last action, if any."""
     st.title(title)
     st.caption(purpose)
+    message = st.session_state.pop("app_flash", None)
+    if message:
+        st.success(message)
+
+
+def flash(message: str) -> None:
+    """Leave ``message`` for the next run of a page (use before ``st.rerun``)."""
+    st.session_state["app_flash"] = message
 
 
 def session_banner() -> None:

@@ -141,7 +141,7 @@ with left:
             try:
                 book.create_session(contents.session, dict(contents.raw_files),
                                     who=common.user_name() or "unnamed", reason=f"imported from {upload.name}")
-                st.success(f"Imported {contents.session.title!r}.")
+                common.flash(f"Imported {contents.session.title!r}.")
                 st.rerun()
             except (InputError, ValueError) as exc:
                 st.error(f"The bundle {upload.name!r} was not imported: {exc}")

@@ -124,7 +124,7 @@ if status in ("draft", "returned"):
             try:
                 book.submit(sid, who=who, comment=note)
                 common.refresh_status(book)
-                st.success("Submitted for review.")
+                common.flash("Submitted for review.")
                 st.rerun()
             except (ValueError, LookupError) as exc:
                 st.error(f"Not submitted: {exc}")

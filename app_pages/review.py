@@ -82,12 +82,12 @@ if chosen is not None:
         try:
             if approve:
                 book.approve(chosen, who=reviewer.strip(), comment=comment.strip(), version=stored.version)
-                st.success("Approved: the session is frozen.")
+                common.flash("Approved: the session is frozen.")
             else:
                 if len(comment.strip()) < 3:
                     raise InputError("say what to change (at least 3 characters)", field="comment")
                 book.return_session(chosen, who=reviewer.strip(), comment=comment.strip())
-                st.success("Returned to the operator with your comment.")
+                common.flash("Returned to the operator with your comment.")
             if st.session_state.get("app_session_id") == chosen:
                 common.refresh_status(book)
             st.rerun()
@@ -107,7 +107,7 @@ if not approved.empty:
         if st.button("Reopen", key="rv_reopen"):
             try:
                 book.reopen(pick, who=who.strip(), reason=why.strip())
-                st.success("Reopened as a draft.")
+                common.flash("Reopened as a draft.")
                 st.rerun()
             except (PermissionDeniedError, InputError) as exc:
                 st.error(f"Not reopened: {exc}")

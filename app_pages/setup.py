@@ -149,7 +149,8 @@ with summary:
         if session is None:
             st.error(f"Not saved: {len(problems)} problem(s) remain (listed under the grids). Nothing was written.")
         elif common.persist(book, edit.data, reason=reason.strip() or "edited on the Set-up page"):
-            st.success(f"Saved as version {st.session_state.get('app_version')}.")
+            common.flash(f"Saved as version {st.session_state.get('app_version')}.")
+            st.rerun()
 
 if session is not None:
     with st.expander("Planning values (from the set-up alone)"):

@@ -154,7 +154,7 @@ if upload is not None:
                             st.warning(f"The mapping was not remembered: {exc}")
                         new = ui_forms.attach_raw_file(data, stored_sha, upload.name, mapping)
                         if common.persist(book, new, reason=f"attached logger file {upload.name}", raw_files={stored_sha: raw}):
-                            st.success(f"Attached {upload.name!r}.")
+                            common.flash(f"Attached {upload.name!r}.")
                             st.rerun()
 
 # --- 2. the trace ---------------------------------------------------------------------------
@@ -239,7 +239,7 @@ if cols[2].button("Exclude", key="tr_exclude", disabled=phase is None):
     else:
         new = ui_forms.add_exclusion(data, phase[0], phase[1], reason, by=common.user_name())
         if common.persist(book, new, reason=f"excluded chamber {phase[0]} cycle {phase[1]}: {reason.strip()}"):
-            st.success(f"Excluded chamber {phase[0]}, cycle {phase[1]}.")
+            common.flash(f"Excluded chamber {phase[0]}, cycle {phase[1]}.")
             st.rerun()
 
 exclusions = data.get("exclusions") or []
