@@ -110,6 +110,8 @@ with tabs[4]:
     grid("blanks", protocol_type, caption="background runs without the fish")
 with tabs[5]:
     grid("events", protocol_type, caption="gait changes, rear-grid contacts, stimuli, bursts, fatigue, adverse events")
+    if "kinematics" in ui_forms.SECTIONS:
+        grid("kinematics", protocol_type, caption="counted per speed step, over a window or over video frames")
 
 edit = ui_forms.session_from_grids(data, frames, protocol_type)
 if not frozen:

@@ -139,6 +139,11 @@ SECTIONS: dict[str, GridSection] = {
             _C("first_swim_session_id", "First swim's session id", "text"),
             _C("fatigue_time_s", "Fatigue at [s]",
                "When the fish met the fatigue criterion, on the trace clock; empty if not reached."),
+            _C("recovery_baseline", "Recovery baseline", "choice",
+               "What the excess post-exercise oxygen is measured from.",
+               tuple([""] + list(getattr(sm, "RECOVERY_BASELINES", {})))),
+            _C("recovery_baseline_mg_kg_h", "Entered SMR [mg O2/kg/h]",
+               "Only with the 'smr' baseline: an SMR from another trial."),
         )),
         GridSection("steps", "Speed steps", "protocol.steps", sm.SpeedStep, True, (
             _C("speed_cm_s", "Set speed [cm/s]"),
@@ -169,6 +174,7 @@ SECTIONS: dict[str, GridSection] = {
             _C("habituation_speed_cm_s", "Habituation speed [cm/s]"),
             _C("time_of_day", "Time of day", "text"),
             _C("photoperiod", "Photoperiod", "text", "e.g. 12L:12D"),
+            _C("treatment", "Treatment or group", "text", "For comparisons across sessions."),
         )),
         GridSection("sensor", "Oxygen sensor calibration", "sensor", sm.SensorCalibration, False, (
             _C("sensor", "Sensor", "text"),
@@ -194,16 +200,32 @@ SECTIONS: dict[str, GridSection] = {
             _C("description", "Description", "text"),
             _C("count", "Count [-]", "integer"),
         )),
+        *([GridSection("kinematics", "Tail beats", "kinematics", sm.TailBeatRecord, True, (
+            _C("step", "Step [-]", "integer"),
+            _C("fish_id", "Fish id", "text"),
+            _C("tail_beat_count", "Tail beats [count]", "integer"),
+            _C("window_s", "Counting window [s]"),
+            _C("frames", "Video frames [count]", "integer"),
+            _C("frame_rate_hz", "Frame rate [1/s]"),
+            _C("amplitude_cm", "Tail-tip amplitude [cm]"),
+        ))] if hasattr(sm, "TailBeatRecord") else []),
     ]
 }
 """Every grid of the set-up page, in page order."""
+
+for _name, _section in list(SECTIONS.items()):
+    _known = tuple(c for c in _section.columns if c.field in _section.model.model_fields)
+    if _known != _section.columns:
+        SECTIONS[_name] = GridSection(_section.name, _section.title, _section.path, _section.model, _section.many,
+                                      _known, _section.optional)
+del _name, _section, _known
 
 PROTOCOL_FIELDS: dict[str, tuple[str, ...]] = {
     "step_ucrit": ("start_s", "fatigue_time_s"),
     "ramp": ("start_s", "ramp_start_speed_cm_s", "ramp_rate_cm_s_per_min", "fatigue_time_s"),
     "endurance": ("start_s", "set_speed_cm_s", "time_limit_min", "fatigue_time_s"),
     "repeat_ucrit": ("start_s", "rest_interval_min", "first_swim_session_id", "fatigue_time_s"),
-    "recovery": ("start_s",),
+    "recovery": ("start_s", "recovery_baseline", "recovery_baseline_mg_kg_h"),
 }
 """The protocol fields each protocol type shows (the rest keep their stored values)."""
 

@@ -25,10 +25,22 @@ def _canonical(data):
     return Session.model_validate(data).to_json_dict()
 
 
-def test_every_grid_column_is_a_field_of_its_model():
+EDITED_ELSEWHERE = {
+    # fields a person does not type in that grid: sub-records with grids of their own, or values
+    # set by the trace page (raw files, exclusions) and the lab book (ids, settings)
+    "trial": {"schema_version", "session_id", "water", "flume", "fish", "protocol", "conditions", "sensor",
+              "blanks", "events", "kinematics", "raw_files", "exclusions", "settings"},
+    "flume": {"calibration", "characterisation"},
+    "protocol": {"type", "steps", "cycle", "fatigue_criterion"},
+}
+
+
+def test_every_field_a_person_enters_has_a_grid_column():
+    # Fails when the session model gains a field that no grid shows.
     for section in uf.SECTIONS.values():
-        for column in section.columns:
-            assert column.field in section.model.model_fields, (section.name, column.field)
+        shown = {c.field for c in section.columns}
+        missing = set(section.model.model_fields) - shown - EDITED_ELSEWHERE.get(section.name, set())
+        assert not missing, (section.name, sorted(missing))
 
 
 def test_headers_of_number_columns_carry_units():
@@ -127,6 +139,7 @@ def test_negative_mass_is_a_problem_at_its_cell():
         ("title", ("trial", 0, "Title")),
         ("trial_date", ("trial", 0, "Date")),
         ("settings", (None, None, None)),
+        ("raw_files.0.sha256", (None, None, None)),
     ],
 )
 def test_field_paths_map_to_grid_cells(field, where):
@@ -293,3 +306,9 @@ def test_results_display_names_units_and_blank_intervals():
 def test_when_text():
     assert uf.when_text("2031-06-02T14:31:41.939184+02:00") == "2031-06-02 12:31 UTC"
     assert uf.when_text("not a time") == "not a time"
+
+
+@pytest.mark.skipif("kinematics" not in uf.SECTIONS, reason="the session model has no tail-beat records")
+def test_tail_beat_problems_map_to_their_grid():
+    loc = uf.locate_problem(Problem(field="kinematics.1.window_s", message="is wrong"))
+    assert (loc.section, loc.row, loc.column) == ("kinematics", 1, "Counting window [s]")
