@@ -101,6 +101,15 @@ class LabSettings:
     """Largest temperature change from acclimation allowed in a trial. [°C] Common practice;
     local animal-care protocols decide."""
 
+    # --- people and login (lab-server mode) ---------------------------------------------------
+    login_attempts_max: int = 5
+    """Failed logins in a row after which a local account is locked. [-] Common practice (OWASP
+    Authentication Cheat Sheet leaves the number to the site; NIST SP 800-63B §5.2.2 allows at
+    most 100)."""
+    login_lockout_min: float = 15.0
+    """How long a locked account stays locked; an admin may unlock it sooner. [min] Common
+    practice."""
+
     def to_dict(self) -> dict[str, Any]:
         """Return the settings as a plain dict (for JSON)."""
         return asdict(self)

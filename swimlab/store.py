@@ -15,6 +15,19 @@ One :class:`LabBook` over SQLAlchemy 2 (Core) keeps
   the session's operator and from the person who submitted it (four eyes).
 - the **lab settings** (overrides of :class:`~swimlab.settings.LabSettings`) and remembered
   column mappings of logger files, keyed by a fingerprint of the file's header.
+- the **people** of a lab server: account name, display name, role (:data:`swimlab.auth.ROLES`),
+  e-mail for single sign-on, a salted scrypt hash of a local password, and the failed-login
+  counter behind the lock-out (:meth:`LabBook.login`).
+
+Two ways in. The methods of :class:`LabBook` itself take ``who=`` as given: they are the trusted
+interface of the command line on the machine that holds the database, of single-user mode and
+of tests. :meth:`LabBook.as_person` gives an :class:`ActingLabBook` that acts as one
+:class:`~swimlab.auth.Person` and checks, inside the transaction that acts, that the person's
+*current* role may take the action (:data:`swimlab.auth.PERMISSIONS`), that they edit and
+submit only sessions they created, and four eyes. A call that breaks a rule is refused with
+:class:`~swimlab.errors.PermissionDeniedError` and changes nothing. Each audit entry records who
+acted and how that identity was established (``via``: password, single sign-on, single-user
+name, or empty for the trusted interface).
 
 Where it lives: the URL given to :meth:`LabBook.open`, else the environment variable
 ``SWIMLAB_DATABASE_URL``, else ``database_url`` in ``swimlab.toml`` in the working folder or in
@@ -40,8 +53,8 @@ import hashlib
 import json
 import os
 import tomllib
-from collections.abc import Iterable, Mapping
-from dataclasses import dataclass
+from collections.abc import Callable, Iterable, Mapping
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -50,6 +63,7 @@ from sqlalchemy import event
 from sqlalchemy.engine import Connection, Engine, make_url
 from sqlalchemy.exc import ArgumentError, DBAPIError, NoSuchModuleError
 
+from swimlab import auth
 from swimlab.errors import ConflictError, InputError, PermissionDeniedError
 from swimlab.session import STATUSES, Session, validate_session
 from swimlab.settings import LabSettings
@@ -75,7 +89,19 @@ SESSION_LIST_COLUMNS = [
     "version",
     "updated_at",
 ]
-AUDIT_COLUMNS = ["id", "session_id", "at", "who", "action", "changes", "reason", "version"]
+AUDIT_COLUMNS = ["id", "session_id", "at", "who", "action", "changes", "reason", "version", "via"]
+PEOPLE_COLUMNS = [
+    "username",
+    "display_name",
+    "role",
+    "email",
+    "active",
+    "local_password",
+    "failed_logins",
+    "locked_until",
+    "last_login_at",
+    "created_at",
+]
 
 _PG_LOCK_KEY = 0x5757_1AB0
 """Advisory lock taken by PostgreSQL migrations so that two openers do not race."""
@@ -278,6 +304,7 @@ sessions_table = sa.Table(
     sa.Column("created_at", sa.String(40), nullable=False),
     sa.Column("updated_at", sa.String(40), nullable=False),
     sa.Column("updated_by", sa.Text, nullable=False),
+    sa.Column("created_by", sa.Text, nullable=False),
 )
 versions_table = sa.Table(
     "session_versions",
@@ -314,6 +341,7 @@ audit_table = sa.Table(
     sa.Column("changes", sa.Text, nullable=False),
     sa.Column("reason", sa.Text, nullable=False),
     sa.Column("version_after", sa.Integer),
+    sa.Column("via", sa.String(16), nullable=False),
 )
 lab_settings_table = sa.Table(
     "lab_settings",
@@ -321,6 +349,22 @@ lab_settings_table = sa.Table(
     sa.Column("id", sa.Integer, primary_key=True),
     sa.Column("settings", sa.Text, nullable=False),
     sa.Column("mappings", sa.Text, nullable=False),
+    sa.Column("updated_at", sa.String(40), nullable=False),
+    sa.Column("updated_by", sa.Text, nullable=False),
+)
+people_table = sa.Table(
+    "people",
+    metadata,
+    sa.Column("username", sa.String(64), primary_key=True),
+    sa.Column("display_name", sa.Text, nullable=False),
+    sa.Column("role", sa.String(16), nullable=False),
+    sa.Column("email", sa.Text, nullable=False),
+    sa.Column("password_hash", sa.Text, nullable=False),
+    sa.Column("active", sa.Integer, nullable=False),
+    sa.Column("failed_logins", sa.Integer, nullable=False),
+    sa.Column("locked_until", sa.String(40), nullable=False),
+    sa.Column("last_login_at", sa.String(40), nullable=False),
+    sa.Column("created_at", sa.String(40), nullable=False),
     sa.Column("updated_at", sa.String(40), nullable=False),
     sa.Column("updated_by", sa.Text, nullable=False),
 )
@@ -426,6 +470,34 @@ _STEP_2 = {
 }
 
 
+_ROLE_CHECK = ", ".join(f"'{r}'" for r in auth.ROLES)
+
+_STEP_3 = [
+    # Who created a session: its owner, for "edit and submit only your own".
+    "ALTER TABLE sessions ADD COLUMN created_by TEXT NOT NULL DEFAULT ''",
+    "UPDATE sessions SET created_by = COALESCE((SELECT a.who FROM audit a"
+    " WHERE a.session_id = sessions.id AND a.action = 'created' ORDER BY a.id LIMIT 1),"
+    " updated_by)",
+    # How the identity of each audit entry was established ('' before this step).
+    "ALTER TABLE audit ADD COLUMN via VARCHAR(16) NOT NULL DEFAULT ''",
+    f"""CREATE TABLE people (
+        username VARCHAR(64) PRIMARY KEY,
+        display_name TEXT NOT NULL,
+        role VARCHAR(16) NOT NULL CHECK (role IN ({_ROLE_CHECK})),
+        email TEXT NOT NULL DEFAULT '',
+        password_hash TEXT NOT NULL DEFAULT '',
+        active INTEGER NOT NULL DEFAULT 1 CHECK (active IN (0, 1)),
+        failed_logins INTEGER NOT NULL DEFAULT 0 CHECK (failed_logins >= 0),
+        locked_until VARCHAR(40) NOT NULL DEFAULT '',
+        last_login_at VARCHAR(40) NOT NULL DEFAULT '',
+        created_at VARCHAR(40) NOT NULL,
+        updated_at VARCHAR(40) NOT NULL,
+        updated_by TEXT NOT NULL)""",
+    "CREATE UNIQUE INDEX people_by_email ON people (email) WHERE email <> ''",
+    "CREATE INDEX sessions_by_creator ON sessions (created_by)",
+]
+
+
 @dataclass(frozen=True)
 class Migration:
     """One schema step: its number, what it does, and its statements per dialect."""
@@ -449,6 +521,11 @@ MIGRATIONS: tuple[Migration, ...] = (
         "indexes for listing and the trail; append-only guards",
         tuple(s.replace("{", "{{").replace("}", "}}") for s in _STEP_2["common"]),
         (("sqlite", tuple(_STEP_2["sqlite"])), ("postgresql", tuple(_STEP_2["postgresql"]))),
+    ),
+    Migration(
+        3,
+        "people and roles; sessions' creator; how each audit entry's identity was established",
+        tuple(s.replace("{", "{{").replace("}", "}}") for s in _STEP_3),
     ),
 )
 """The ordered schema steps. Append new steps; never edit a released one."""
@@ -496,6 +573,34 @@ def _text(value: Any, field: str, *, required: bool, min_length: int = 1) -> str
 
 def _same_person(a: str, b: str) -> bool:
     return bool(a.strip()) and a.strip().casefold() == b.strip().casefold()
+
+
+@dataclass(frozen=True)
+class _Actor:
+    """Who acts: the name for the trail, how it was established, and the person to check.
+
+    ``person`` is ``None`` on the trusted interface (``who=`` given to :class:`LabBook`'s own
+    methods): no role or ownership checks then, four eyes still.
+    """
+
+    name: str
+    via: str = ""
+    person: auth.Person | None = None
+
+    @classmethod
+    def given(cls, who: Any) -> _Actor:
+        return cls(_person(who))
+
+    def names(self) -> frozenset[str]:
+        names = {self.name.strip().casefold()}
+        if self.person is not None:
+            names |= self.person.names()
+        return frozenset(names)
+
+    @property
+    def account(self) -> bool:
+        """Whether this is a signed-in account, whose role and ownership are checked."""
+        return self.person is not None and self.person.authenticated
 
 
 def _checked_document(session: Session) -> dict[str, Any]:
@@ -758,6 +863,7 @@ class LabBook:
         reason: str,
         version: int | None,
         at: str,
+        via: str = "",
     ) -> None:
         conn.execute(
             audit_table.insert().values(
@@ -768,8 +874,46 @@ class LabBook:
                 changes=_dumps(changes),
                 reason=reason,
                 version_after=version,
+                via=via,
             )
         )
+
+    def _check(self, conn: Connection, actor: _Actor, action: str, what: str = "") -> None:
+        """Refuse (PermissionDeniedError) unless ``actor`` may take ``action`` now.
+
+        For a signed-in account the role is read again from the people table, in the same
+        transaction as the action, so that a changed role or a deactivated account counts at
+        once. The trusted interface is not checked.
+        """
+        person = actor.person
+        if person is None:
+            return
+        if person.authenticated:
+            query = sa.select(people_table.c.role, people_table.c.active).where(
+                people_table.c.username == person.username
+            )
+            if self.dialect == "postgresql":
+                query = query.with_for_update(read=True)
+            row = conn.execute(query).first()
+            if row is None or not row.active:
+                state = "not in this lab book" if row is None else "no longer active"
+                raise PermissionDeniedError(
+                    f"the account {person.username!r} is {state}; nothing was changed"
+                )
+            person = replace(person, role=row.role)
+        auth.require(person, action, what)
+
+    @staticmethod
+    def _check_owner(actor: _Actor, row: Mapping[str, Any], verb: str) -> None:
+        """Refuse unless a signed-in ``actor`` created the session in ``row``."""
+        if not actor.account:
+            return
+        owner = row["created_by"] or ""
+        if owner.strip().casefold() != actor.name.strip().casefold():
+            raise PermissionDeniedError(
+                f"{actor.person} may {verb} only sessions they created; session {row['id']!r} "
+                f"was created by {owner!r}. Nothing was changed."
+            )
 
     def _conflict(self, conn: Connection, session_id: str, base_version: int, row) -> ConflictError:
         current = int(row["version"])
@@ -845,12 +989,23 @@ class LabBook:
             If the session is not valid, a raw file's bytes do not match its checksum, or the
             session refers to a raw file the lab book does not have.
         """
-        who = _person(who)
+        return self._create_session(session, raw_files, actor=_Actor.given(who), reason=reason)
+
+    def _create_session(
+        self,
+        session: Session,
+        raw_files: Mapping[str, bytes] | None,
+        *,
+        actor: _Actor,
+        reason: str,
+    ) -> int:
+        who = actor.name
         reason = _text(reason, "reason", required=False)
         document = _checked_document(session)
         session_id = session.session_id
         at = _now()
         with self._engine.begin() as conn:
+            self._check(conn, actor, auth.CREATE)
             exists = conn.execute(
                 sa.select(sessions_table.c.id).where(sessions_table.c.id == session_id)
             ).first()
@@ -870,6 +1025,7 @@ class LabBook:
                     created_at=at,
                     updated_at=at,
                     updated_by=who,
+                    created_by=who,
                     **_summary(document),
                 )
             )
@@ -888,6 +1044,7 @@ class LabBook:
                 reason=reason,
                 version=1,
                 at=at,
+                via=actor.via,
             )
         return 1
 
@@ -934,7 +1091,24 @@ class LabBook:
         Saving a submitted session takes it back to draft, so that a reviewer never approves a
         version they were not sent.
         """
-        who = _person(who)
+        return self._save_session(
+            session,
+            base_version=base_version,
+            actor=_Actor.given(who),
+            reason=reason,
+            raw_files=raw_files,
+        )
+
+    def _save_session(
+        self,
+        session: Session,
+        *,
+        base_version: int,
+        actor: _Actor,
+        reason: str,
+        raw_files: Mapping[str, bytes] | None,
+    ) -> int:
+        who = actor.name
         reason = _text(reason, "reason", required=False)
         if isinstance(base_version, bool) or not isinstance(base_version, int):
             raise InputError(f"must be a whole number; got {base_version!r}", field="base_version")
@@ -942,7 +1116,9 @@ class LabBook:
         session_id = session.session_id
         at = _now()
         with self._engine.begin() as conn:
+            self._check(conn, actor, auth.EDIT_OWN, f"{session_id!r}")
             row = self._locked_row(conn, session_id)
+            self._check_owner(actor, row, "edit")
             if row["status"] == "approved":
                 raise PermissionDeniedError(
                     f"session {session_id!r} is approved and read-only; reopen it with a reason "
@@ -995,6 +1171,7 @@ class LabBook:
                 reason=reason,
                 version=new_version,
                 at=at,
+                via=actor.via,
             )
         return new_version
 
@@ -1082,11 +1259,50 @@ class LabBook:
         return pd.DataFrame([tuple(r) for r in rows], columns=SESSION_LIST_COLUMNS)
 
     # -- status and sign-off ------------------------------------------------------------------
+    def _four_eyes(
+        self, conn: Connection, actor: _Actor, session_id: str, row: Mapping[str, Any]
+    ) -> None:
+        """Refuse a review by anyone who had a hand in the session (four eyes).
+
+        The reviewer must not be the person named as its operator, its creator, anyone who
+        saved a version of it, or the person who submitted it last. Names are compared without
+        regard to case; a signed-in reviewer is compared by account name and display name.
+        """
+        submitter = (
+            conn.execute(
+                sa.select(audit_table.c.who)
+                .where(audit_table.c.session_id == session_id)
+                .where(audit_table.c.action == "submitted")
+                .order_by(audit_table.c.id.desc())
+                .limit(1)
+            ).scalar()
+            or ""
+        )
+        savers = conn.execute(
+            sa.select(versions_table.c.saved_by)
+            .where(versions_table.c.session_id == session_id)
+            .distinct()
+        ).scalars()
+        hands = [
+            ("operator", row["operator"] or ""),
+            ("creator", row["created_by"] or ""),
+            ("person who submitted it", submitter),
+            *(("person who saved a version of it", name or "") for name in savers),
+        ]
+        names = actor.names()
+        for part, name in hands:
+            if name.strip() and name.strip().casefold() in names:
+                raise PermissionDeniedError(
+                    f"{actor.name!r} is the {part} of session {session_id!r}; a different "
+                    "person must review it (four eyes)"
+                )
+
     def _set_status(
         self,
         session_id: str,
         *,
-        who: str,
+        actor: _Actor,
+        permission: str,
         action: str,
         verb: str,
         allowed: Iterable[str],
@@ -1094,11 +1310,16 @@ class LabBook:
         reason: str,
         return_comment: str = "",
         reviewer: bool = False,
+        owner_only: bool = False,
         version: int | None = None,
     ) -> StoredSession:
+        who = actor.name
         at = _now()
         with self._engine.begin() as conn:
+            self._check(conn, actor, permission, f"{session_id!r}")
             row = self._locked_row(conn, session_id)
+            if owner_only:
+                self._check_owner(actor, row, verb)
             status = row["status"]
             if status not in allowed:
                 hint = " (reopen it with a reason first)" if status == "approved" else ""
@@ -1109,23 +1330,7 @@ class LabBook:
             if version is not None and int(row["version"]) != version:
                 raise self._conflict(conn, session_id, version, row)
             if reviewer:
-                operator = row["operator"] or ""
-                submitter = (
-                    conn.execute(
-                        sa.select(audit_table.c.who)
-                        .where(audit_table.c.session_id == session_id)
-                        .where(audit_table.c.action == "submitted")
-                        .order_by(audit_table.c.id.desc())
-                        .limit(1)
-                    ).scalar()
-                    or ""
-                )
-                if _same_person(who, operator) or _same_person(who, submitter):
-                    role = "operator" if _same_person(who, operator) else "person who submitted it"
-                    raise PermissionDeniedError(
-                        f"{who!r} is the {role} of session {session_id!r}; a different person must "
-                        "review it (four eyes)"
-                    )
+                self._four_eyes(conn, actor, session_id, row)
             changes = [{"field": "status", "from": status, "to": to}]
             if return_comment != row["return_comment"]:
                 changes.append(
@@ -1150,19 +1355,25 @@ class LabBook:
                 reason=reason,
                 version=int(row["version"]),
                 at=at,
+                via=actor.via,
             )
         return self.get_session(session_id)
 
     def submit(self, session_id: str, *, who: str, comment: str = "") -> StoredSession:
         """Send a draft or returned session for review (status submitted)."""
+        return self._submit(session_id, actor=_Actor.given(who), comment=comment)
+
+    def _submit(self, session_id: str, *, actor: _Actor, comment: str) -> StoredSession:
         return self._set_status(
             session_id,
-            who=_person(who),
+            actor=actor,
+            permission=auth.SUBMIT_OWN,
             action="submitted",
             verb="submit",
             allowed=("draft", "returned"),
             to="submitted",
             reason=_text(comment, "comment", required=False),
+            owner_only=True,
         )
 
     def approve(
@@ -1170,12 +1381,19 @@ class LabBook:
     ) -> StoredSession:
         """Approve a submitted session; it becomes read-only.
 
-        ``who`` must differ from the session's operator and from whoever submitted it. Pass the
-        ``version`` that was reviewed to refuse approving a later one (ConflictError).
+        ``who`` must differ from the session's operator, its creator, everyone who saved a
+        version of it and whoever submitted it (four eyes). Pass the ``version`` that was
+        reviewed to refuse approving a later one (ConflictError).
         """
+        return self._approve(session_id, actor=_Actor.given(who), comment=comment, version=version)
+
+    def _approve(
+        self, session_id: str, *, actor: _Actor, comment: str, version: int | None
+    ) -> StoredSession:
         return self._set_status(
             session_id,
-            who=_person(who),
+            actor=actor,
+            permission=auth.APPROVE,
             action="approved",
             verb="approve",
             allowed=("submitted",),
@@ -1187,10 +1405,14 @@ class LabBook:
 
     def return_session(self, session_id: str, *, who: str, comment: str) -> StoredSession:
         """Return a submitted session to its operator with a comment saying what to change."""
+        return self._return_session(session_id, actor=_Actor.given(who), comment=comment)
+
+    def _return_session(self, session_id: str, *, actor: _Actor, comment: str) -> StoredSession:
         comment = _text(comment, "comment", required=True, min_length=3)
         return self._set_status(
             session_id,
-            who=_person(who),
+            actor=actor,
+            permission=auth.RETURN,
             action="returned",
             verb="return",
             allowed=("submitted",),
@@ -1202,10 +1424,14 @@ class LabBook:
 
     def reopen(self, session_id: str, *, who: str, reason: str) -> StoredSession:
         """Reopen an approved session for editing (status draft); the reason goes in the trail."""
+        return self._reopen(session_id, actor=_Actor.given(who), reason=reason)
+
+    def _reopen(self, session_id: str, *, actor: _Actor, reason: str) -> StoredSession:
         reason = _text(reason, "reason", required=True, min_length=3)
         return self._set_status(
             session_id,
-            who=_person(who),
+            actor=actor,
+            permission=auth.REOPEN,
             action="reopened",
             verb="reopen",
             allowed=("approved",),
@@ -1220,6 +1446,11 @@ class LabBook:
         Storing the same bytes again does nothing. When ``sha256`` is given, bytes with another
         checksum are refused.
         """
+        return self._add_raw_file(data, name, sha256=sha256, actor=None)
+
+    def _add_raw_file(
+        self, data: bytes, name: str, *, sha256: str | None, actor: _Actor | None
+    ) -> str:
         data = _as_bytes(data, "data")
         actual = _sha256(data)
         if sha256 is not None and actual != sha256:
@@ -1228,6 +1459,8 @@ class LabBook:
                 field="sha256",
             )
         with self._engine.begin() as conn:
+            if actor is not None:
+                self._check(conn, actor, auth.ADD_RAW_FILE)
             self._insert_raw(conn, actual, data, _text(name, "name", required=False))
         return actual
 
@@ -1254,16 +1487,19 @@ class LabBook:
 
     # -- audit trail --------------------------------------------------------------------------
     def audit_trail(self, session_id: str | None) -> pd.DataFrame:
-        """The audit trail of a session (or, for ``None``, of the lab settings), oldest first.
+        """The audit trail of a session (or, for ``None``, of the lab: settings, mappings and
+        people), oldest first.
 
         Columns: id, session_id, at (UTC, ISO 8601), who, action, changes (list of
-        ``{"field", "from", "to"}``), reason, version (the version after the action).
+        ``{"field", "from", "to"}``), reason, version (the version after the action), via (how
+        the identity of ``who`` was established: ``password``, ``oidc``, ``single-user``, or
+        ``""`` for the trusted interface).
         """
         import pandas as pd
 
         t = audit_table.c
         query = sa.select(
-            t.id, t.session_id, t.at, t.who, t.action, t.changes, t.reason, t.version_after
+            t.id, t.session_id, t.at, t.who, t.action, t.changes, t.reason, t.version_after, t.via
         )
         query = query.where(
             t.session_id.is_(None) if session_id is None else t.session_id == session_id
@@ -1280,6 +1516,7 @@ class LabBook:
                 json.loads(r.changes),
                 r.reason,
                 r.version_after,
+                r.via,
             )
             for r in rows
         ]
@@ -1308,7 +1545,12 @@ class LabBook:
         self, overrides: Mapping[str, Any], *, who: str, reason: str
     ) -> LabSettings:
         """Replace the lab's overrides (``{}`` returns to the defaults); recorded in the trail."""
-        who = _person(who)
+        return self._set_lab_settings(overrides, actor=_Actor.given(who), reason=reason)
+
+    def _set_lab_settings(
+        self, overrides: Mapping[str, Any], *, actor: _Actor, reason: str
+    ) -> LabSettings:
+        who = actor.name
         reason = _text(reason, "reason", required=True, min_length=3)
         if not isinstance(overrides, Mapping):
             raise InputError(
@@ -1316,8 +1558,10 @@ class LabBook:
             )
         overrides = dict(overrides)
         settings = LabSettings.from_dict(overrides)
+        auth.check_login_settings(settings.login_attempts_max, settings.login_lockout_min)
         at = _now()
         with self._engine.begin() as conn:
+            self._check(conn, actor, auth.CHANGE_SETTINGS)
             row = self._settings_row(conn)
             old = json.loads(row["settings"])
             changes = diff_documents({"settings": old}, {"settings": overrides})
@@ -1335,12 +1579,18 @@ class LabBook:
                 reason=reason,
                 version=None,
                 at=at,
+                via=actor.via,
             )
         return settings
 
     def remember_mapping(self, fingerprint: str, mapping: Mapping[str, Any], *, who: str) -> None:
         """Remember the column mapping for logger files whose header has this fingerprint."""
-        who = _person(who)
+        self._remember_mapping(fingerprint, mapping, actor=_Actor.given(who))
+
+    def _remember_mapping(
+        self, fingerprint: str, mapping: Mapping[str, Any], *, actor: _Actor
+    ) -> None:
+        who = actor.name
         fingerprint = _text(fingerprint, "fingerprint", required=True)
         if not isinstance(mapping, Mapping):
             raise InputError(f"must be a mapping; got {mapping!r}", field="mapping")
@@ -1350,6 +1600,7 @@ class LabBook:
             raise InputError(f"must hold only JSON values: {exc}", field="mapping") from exc
         at = _now()
         with self._engine.begin() as conn:
+            self._check(conn, actor, auth.REMEMBER_MAPPING)
             row = self._settings_row(conn)
             mappings = json.loads(row["mappings"])
             old = mappings.get(fingerprint)
@@ -1371,6 +1622,7 @@ class LabBook:
                 reason="",
                 version=None,
                 at=at,
+                via=actor.via,
             )
 
     def recall_mapping(self, fingerprint: str) -> dict[str, Any] | None:
@@ -1384,3 +1636,782 @@ class LabBook:
                 sa.select(lab_settings_table.c.mappings).where(lab_settings_table.c.id == 1)
             ).scalar()
         return json.loads(row or "{}")
+
+    # -- people -------------------------------------------------------------------------------
+    def _person_row(self, conn: Connection, username: str, *, lock: bool = False):
+        query = sa.select(people_table).where(people_table.c.username == username)
+        if lock and self.dialect == "postgresql":
+            query = query.with_for_update()
+        return conn.execute(query).mappings().first()
+
+    def _known_row(self, conn: Connection, username: str):
+        row = self._person_row(conn, username, lock=True)
+        if row is None:
+            raise InputError(f"no person {username!r} in the lab book", field="username")
+        return row
+
+    def _active_admins(self, conn: Connection) -> int:
+        return int(
+            conn.execute(
+                sa.select(sa.func.count())
+                .select_from(people_table)
+                .where(people_table.c.role == auth.ADMIN)
+                .where(people_table.c.active == 1)
+            ).scalar()
+            or 0
+        )
+
+    def _people_audit(
+        self,
+        conn: Connection,
+        actor: _Actor,
+        action: str,
+        username: str,
+        changes: list[dict[str, Any]],
+        reason: str,
+        at: str,
+    ) -> None:
+        self._audit(
+            conn,
+            session_id=None,
+            who=actor.name,
+            action=action,
+            changes=[{**c, "field": f"people.{username}.{c['field']}"} for c in changes],
+            reason=reason,
+            version=None,
+            at=at,
+            via=actor.via,
+        )
+
+    def add_person(
+        self,
+        username: str,
+        *,
+        display_name: str,
+        role: str,
+        email: str = "",
+        password: str | None = None,
+        who: str,
+        reason: str = "",
+    ) -> Account:
+        """Add a person to the lab (lab-server mode); recorded in the trail.
+
+        Parameters
+        ----------
+        username
+            Account name: 1–64 characters of letters, digits and ``. _ @ + -`` (stored in lower
+            case).
+        display_name
+            The name shown on pages and in reports.
+        role
+            One of :data:`swimlab.auth.ROLES`.
+        email
+            Address matched against the single-sign-on service's verified ``email`` claim;
+            ``""`` for none.
+        password
+            A local password (see :func:`swimlab.auth.check_new_password`), stored only as a
+            salted scrypt hash; ``None`` for a person who signs in through single sign-on only.
+        who, reason
+            For the audit trail.
+        """
+        return self._add_person(
+            username,
+            display_name=display_name,
+            role=role,
+            email=email,
+            password=password,
+            actor=_Actor.given(who),
+            reason=reason,
+        )
+
+    def _add_person(
+        self,
+        username: str,
+        *,
+        display_name: str,
+        role: str,
+        email: str,
+        password: str | None,
+        actor: _Actor,
+        reason: str,
+    ) -> Account:
+        username = auth.check_username(username)
+        display_name = auth._check_name(display_name, "display_name")
+        role = auth.check_role(role)
+        email = _email(email)
+        reason = _text(reason, "reason", required=False)
+        password_hash = ""
+        if password is not None:
+            auth.check_new_password(password, username=username)
+            password_hash = auth.hash_password(password)
+        at = _now()
+        with self._engine.begin() as conn:
+            self._check(conn, actor, auth.MANAGE_PEOPLE)
+            if self._person_row(conn, username, lock=True) is not None:
+                raise ConflictError(
+                    f"a person with account name {username!r} is already in the lab book; "
+                    "nothing was changed"
+                )
+            self._email_free(conn, email, username)
+            conn.execute(
+                people_table.insert().values(
+                    username=username,
+                    display_name=display_name,
+                    role=role,
+                    email=email,
+                    password_hash=password_hash,
+                    active=1,
+                    failed_logins=0,
+                    locked_until="",
+                    last_login_at="",
+                    created_at=at,
+                    updated_at=at,
+                    updated_by=actor.name,
+                )
+            )
+            changes = [
+                {"field": "display_name", "from": None, "to": display_name},
+                {"field": "role", "from": None, "to": role},
+                {"field": "email", "from": None, "to": email},
+                {"field": "local_password", "from": None, "to": bool(password_hash)},
+            ]
+            self._people_audit(conn, actor, "person added", username, changes, reason, at)
+        return self.get_person(username)
+
+    def _email_free(self, conn: Connection, email: str, username: str) -> None:
+        if not email:
+            return
+        other = conn.execute(
+            sa.select(people_table.c.username)
+            .where(people_table.c.email == email)
+            .where(people_table.c.username != username)
+        ).scalar()
+        if other is not None:
+            raise ConflictError(
+                f"the e-mail address {email!r} already belongs to {other!r}; nothing was changed"
+            )
+
+    def _update_person(
+        self,
+        username: str,
+        *,
+        actor: _Actor,
+        action: str,
+        values: Mapping[str, Any],
+        reason: str,
+        changes: Callable[[Mapping[str, Any]], list[dict[str, Any]]] | None = None,
+    ) -> Account:
+        username = auth.check_username(username)
+        at = _now()
+        with self._engine.begin() as conn:
+            self._check(conn, actor, auth.MANAGE_PEOPLE)
+            row = self._known_row(conn, username)
+            was_admin = row["role"] == auth.ADMIN and row["active"] == 1
+            stays_admin = values.get("role", row["role"]) == auth.ADMIN and values.get(
+                "active", row["active"]
+            ) == 1
+            if was_admin and not stays_admin and self._active_admins(conn) <= 1:
+                raise PermissionDeniedError(
+                    f"{username!r} is the lab's last active admin; make someone else admin "
+                    "first. Nothing was changed."
+                )
+            if "email" in values:
+                self._email_free(conn, values["email"], username)
+            listed = (
+                changes(row)
+                if changes is not None
+                else [
+                    {"field": k, "from": row[k], "to": v}
+                    for k, v in values.items()
+                    if row[k] != v
+                ]
+            )
+            if not listed:
+                return self.get_person(username)
+            conn.execute(
+                people_table.update()
+                .where(people_table.c.username == username)
+                .values(**values, updated_at=at, updated_by=actor.name)
+            )
+            self._people_audit(conn, actor, action, username, listed, reason, at)
+        return self.get_person(username)
+
+    def set_role(self, username: str, role: str, *, who: str, reason: str) -> Account:
+        """Change a person's role (takes effect at their next action); recorded in the trail.
+
+        The lab's last active admin cannot be made anything else.
+        """
+        return self._set_role(username, role, actor=_Actor.given(who), reason=reason)
+
+    def _set_role(self, username: str, role: str, *, actor: _Actor, reason: str) -> Account:
+        role = auth.check_role(role)
+        reason = _text(reason, "reason", required=True, min_length=3)
+        return self._update_person(
+            username, actor=actor, action="role changed", values={"role": role}, reason=reason
+        )
+
+    def set_active(self, username: str, active: bool, *, who: str, reason: str) -> Account:
+        """Deactivate a person (they can no longer sign in or act) or activate them again.
+
+        People are never deleted: the audit trail names them. The lab's last active admin
+        cannot be deactivated.
+        """
+        return self._set_active(username, active, actor=_Actor.given(who), reason=reason)
+
+    def _set_active(self, username: str, active: bool, *, actor: _Actor, reason: str) -> Account:
+        if not isinstance(active, bool):
+            raise InputError(f"must be True or False; got {active!r}", field="active")
+        reason = _text(reason, "reason", required=True, min_length=3)
+        return self._update_person(
+            username,
+            actor=actor,
+            action="person reactivated" if active else "person deactivated",
+            values={"active": int(active)},
+            reason=reason,
+        )
+
+    def set_email(self, username: str, email: str, *, who: str, reason: str = "") -> Account:
+        """Change the e-mail address matched against single sign-on (``""`` for none)."""
+        return self._update_person(
+            username,
+            actor=_Actor.given(who),
+            action="e-mail changed",
+            values={"email": _email(email)},
+            reason=_text(reason, "reason", required=False),
+        )
+
+    def set_password(
+        self, username: str, password: str | None, *, who: str, reason: str = ""
+    ) -> Account:
+        """Set a person's local password (``None`` removes it: single sign-on only).
+
+        The password is checked (:func:`swimlab.auth.check_new_password`) and stored only as a
+        salted scrypt hash; the trail records that it changed, never the hash. A lock-out is
+        lifted.
+        """
+        return self._set_password(username, password, actor=_Actor.given(who), reason=reason)
+
+    def _set_password(
+        self, username: str, password: str | None, *, actor: _Actor, reason: str
+    ) -> Account:
+        username = auth.check_username(username)
+        reason = _text(reason, "reason", required=False)
+        password_hash = ""
+        if password is not None:
+            auth.check_new_password(password, username=username)
+            password_hash = auth.hash_password(password)
+
+        def listed(row: Mapping[str, Any]) -> list[dict[str, Any]]:
+            return [
+                {
+                    "field": "local_password",
+                    "from": bool(row["password_hash"]),
+                    "to": "changed" if password_hash and row["password_hash"] else bool(password_hash),
+                }
+            ]
+
+        return self._update_person(
+            username,
+            actor=actor,
+            action="password set" if password_hash else "password removed",
+            values={"password_hash": password_hash, "failed_logins": 0, "locked_until": ""},
+            reason=reason,
+            changes=listed,
+        )
+
+    def unlock(self, username: str, *, who: str, reason: str = "") -> Account:
+        """Lift a lock-out after failed logins, before it expires; recorded in the trail."""
+        return self._unlock(username, actor=_Actor.given(who), reason=reason)
+
+    def _unlock(self, username: str, *, actor: _Actor, reason: str) -> Account:
+        reason = _text(reason, "reason", required=False)
+
+        def listed(row: Mapping[str, Any]) -> list[dict[str, Any]]:
+            if not row["locked_until"] and not row["failed_logins"]:
+                return []
+            return [
+                {"field": "failed_logins", "from": row["failed_logins"], "to": 0},
+                {"field": "locked_until", "from": row["locked_until"] or None, "to": None},
+            ]
+
+        return self._update_person(
+            username,
+            actor=actor,
+            action="person unlocked",
+            values={"failed_logins": 0, "locked_until": ""},
+            reason=reason,
+            changes=listed,
+        )
+
+    def get_person(self, username: str) -> Account:
+        """One person's account (never their password hash).
+
+        Raises
+        ------
+        InputError
+            If there is no such person (field ``username``).
+        """
+        username = auth.check_username(username)
+        with self._engine.connect() as conn:
+            row = self._person_row(conn, username)
+        if row is None:
+            raise InputError(f"no person {username!r} in the lab book", field="username")
+        return Account.from_row(row)
+
+    def list_people(self) -> pd.DataFrame:
+        """Everyone in the lab, by account name; columns :data:`PEOPLE_COLUMNS` (no hashes)."""
+        import pandas as pd
+
+        with self._engine.connect() as conn:
+            rows = conn.execute(
+                sa.select(people_table).order_by(people_table.c.username)
+            ).mappings().all()
+        records = [tuple(getattr(Account.from_row(r), c) for c in PEOPLE_COLUMNS) for r in rows]
+        return pd.DataFrame(records, columns=PEOPLE_COLUMNS)
+
+    def has_people(self) -> bool:
+        """Whether any person has been added (a lab server needs at least one admin)."""
+        with self._engine.connect() as conn:
+            return conn.execute(sa.select(people_table.c.username).limit(1)).first() is not None
+
+    # -- signing in ---------------------------------------------------------------------------
+    def login(
+        self, username: str, password: str, *, now: dt.datetime | None = None
+    ) -> auth.Person:
+        """Check a local account's password; return the signed-in person.
+
+        After :attr:`~swimlab.settings.LabSettings.login_attempts_max` wrong passwords in a row
+        the account is locked for :attr:`~swimlab.settings.LabSettings.login_lockout_min`
+        minutes (an admin may unlock it sooner); the lock is recorded in the trail. A success
+        clears the count, and re-hashes the password if its stored hash is weaker than the
+        current parameters.
+
+        Parameters
+        ----------
+        username, password
+            What the person typed. The password is never stored, logged or put in a message.
+        now
+            The time of the attempt (UTC); for tests. Default: the clock.
+
+        Raises
+        ------
+        LoginError
+            For an unknown account, a wrong password, an account without a local password or a
+            deactivated one, all with the same message (it does not tell which).
+        LockedOutError
+            If the account is locked; its ``until`` says until when (UTC, ISO 8601).
+        """
+        when = now or dt.datetime.now(dt.UTC)
+        if when.tzinfo is None:
+            raise ValueError("now must be timezone-aware (UTC)")
+        try:
+            username = auth.check_username(username)
+        except InputError:
+            auth.verify_password(password if isinstance(password, str) else "", None)
+            raise auth.LoginError(auth.WRONG_LOGIN, field="password") from None
+        settings = self.get_lab_settings()
+        attempts_max, lockout_min = auth.check_login_settings(
+            settings.login_attempts_max, settings.login_lockout_min
+        )
+        with self._engine.connect() as conn:
+            row = self._person_row(conn, username)
+        if row is not None:
+            self._refuse_if_locked(row, when)
+        usable = row is not None and row["active"] == 1 and bool(row["password_hash"])
+        checked_hash = row["password_hash"] if usable else None
+        ok = auth.verify_password(password, checked_hash) and usable
+        at = when.isoformat(timespec="microseconds")
+        with self._engine.begin() as conn:
+            row = self._person_row(conn, username, lock=True)
+            if row is None:
+                raise auth.LoginError(auth.WRONG_LOGIN, field="password")
+            self._refuse_if_locked(row, when)  # locked by a parallel attempt meanwhile
+            expired = bool(row["locked_until"])  # a lock that is over: count afresh
+            # Deactivated, or the password reset, since it was checked: the check does not count.
+            ok = ok and row["active"] == 1 and row["password_hash"] == checked_hash
+            if ok:
+                values: dict[str, Any] = {"failed_logins": 0, "locked_until": "", "last_login_at": at}
+                if auth.needs_rehash(row["password_hash"]):
+                    values["password_hash"] = auth.hash_password(password)
+                conn.execute(
+                    people_table.update().where(people_table.c.username == username).values(**values)
+                )
+                return auth.Person(
+                    username=username,
+                    display_name=row["display_name"],
+                    role=row["role"],
+                    via=auth.VIA_PASSWORD,
+                )
+            if row["active"] != 1 or not row["password_hash"]:
+                raise auth.LoginError(auth.WRONG_LOGIN, field="password")
+            failed = (0 if expired else int(row["failed_logins"])) + 1
+            values = {"failed_logins": failed, "locked_until": ""}
+            if failed >= attempts_max:
+                until = (when + dt.timedelta(minutes=lockout_min)).isoformat(timespec="microseconds")
+                values["locked_until"] = until
+                self._audit(
+                    conn,
+                    session_id=None,
+                    who=username,
+                    action="login locked",
+                    changes=[
+                        {"field": f"people.{username}.locked_until", "from": None, "to": until}
+                    ],
+                    reason=f"{failed} failed logins in a row",
+                    version=None,
+                    at=at,
+                    via=auth.VIA_PASSWORD,
+                )
+            conn.execute(
+                people_table.update().where(people_table.c.username == username).values(**values)
+            )
+        if values["locked_until"]:
+            self._refuse_if_locked(values, when)
+        raise auth.LoginError(auth.WRONG_LOGIN, field="password")
+
+    @staticmethod
+    def _refuse_if_locked(row: Mapping[str, Any], when: dt.datetime) -> None:
+        if not row["locked_until"]:
+            return
+        until = dt.datetime.fromisoformat(row["locked_until"])
+        if when < until:
+            shown = until.strftime("%Y-%m-%d %H:%M UTC")
+            raise auth.LockedOutError(
+                f"too many failed logins: the account is locked until {shown}; try again then, "
+                "or ask the lab's admin to unlock it",
+                until=row["locked_until"],
+            )
+
+    def person_for_claims(self, claims: Mapping[str, Any]) -> auth.Person:
+        """The person whom a single-sign-on service vouched for (``st.user`` of ``st.login``).
+
+        The verified ``email`` claim is matched (without regard to case) against the people's
+        e-mail addresses; someone the lab has not added, or has deactivated, is refused.
+
+        Raises
+        ------
+        LoginError
+            With field ``email``: no usable address in the claims, or nobody active with it.
+        """
+        email = auth.email_from_claims(claims)
+        with self._engine.connect() as conn:
+            row = (
+                conn.execute(sa.select(people_table).where(people_table.c.email == email))
+                .mappings()
+                .first()
+            )
+        if row is None or row["active"] != 1:
+            raise auth.LoginError(
+                f"{email} is not an active member of this lab book; ask the lab's admin to add "
+                "you with this e-mail address",
+                field="email",
+            )
+        return auth.Person(
+            username=row["username"],
+            display_name=row["display_name"],
+            role=row["role"],
+            via=auth.VIA_OIDC,
+        )
+
+    def as_person(self, person: auth.Person) -> ActingLabBook:
+        """The lab book as ``person`` acts on it: every action checked (see the module notes)."""
+        if not isinstance(person, auth.Person):
+            raise InputError(
+                f"must be a swimlab.auth.Person; got {type(person).__name__}", field="person"
+            )
+        return ActingLabBook(self, person)
+
+
+def _email(value: Any) -> str:
+    if not isinstance(value, str):
+        raise InputError(f"must be text; got {value!r}", field="email")
+    text = value.strip().lower()
+    if text and ("@" not in text or " " in text or len(text) > 254):
+        raise InputError(f"must be an e-mail address (or empty); got {value!r}", field="email")
+    return text
+
+
+@dataclass(frozen=True)
+class Account:
+    """One person in the lab book, as the people table holds them (no password hash).
+
+    Attributes
+    ----------
+    username, display_name, role, email
+        See :meth:`LabBook.add_person`.
+    active
+        Whether they may sign in and act.
+    local_password
+        Whether a local password is set.
+    failed_logins
+        Wrong passwords in a row since the last success.
+    locked_until
+        UTC time (ISO 8601) until which the account is locked, or ``""``.
+    last_login_at, created_at
+        UTC times (ISO 8601); ``""`` when never.
+    """
+
+    username: str
+    display_name: str
+    role: str
+    email: str
+    active: bool
+    local_password: bool
+    failed_logins: int
+    locked_until: str
+    last_login_at: str
+    created_at: str
+
+    @classmethod
+    def from_row(cls, row: Mapping[str, Any]) -> Account:
+        return cls(
+            username=row["username"],
+            display_name=row["display_name"],
+            role=row["role"],
+            email=row["email"],
+            active=bool(row["active"]),
+            local_password=bool(row["password_hash"]),
+            failed_logins=int(row["failed_logins"]),
+            locked_until=row["locked_until"],
+            last_login_at=row["last_login_at"],
+            created_at=row["created_at"],
+        )
+
+
+# --------------------------------------------------------------------------------------------
+# The lab book as one person acts on it
+# --------------------------------------------------------------------------------------------
+
+
+class ActingLabBook:
+    """The lab book as one :class:`~swimlab.auth.Person` acts on it.
+
+    Every write is checked inside its own transaction, before anything is written:
+
+    - the person's role may take the action (:data:`swimlab.auth.PERMISSIONS`); for a
+      signed-in account the role (and that the account is still active) is read afresh;
+    - a signed-in person edits and submits only sessions they created;
+    - a review (approve, return) is by someone other than the operator, creator, any saver or
+      the submitter (four eyes).
+
+    A refused call raises :class:`~swimlab.errors.PermissionDeniedError` and changes nothing.
+    Reads need the role to read (any active person). Methods take the same arguments as those
+    of :class:`LabBook` without ``who``; a ``who`` that is given must name this person (for a
+    single-user person it names whoever acts at this computer, since names are not proven
+    there). Nothing else of the lab book is reachable through this object.
+    """
+
+    _READS = frozenset(
+        {
+            "get_session",
+            "get_session_version",
+            "session_history",
+            "list_sessions",
+            "get_raw_file",
+            "raw_files_of",
+            "audit_trail",
+            "get_lab_setting_overrides",
+            "get_lab_settings",
+            "recall_mapping",
+            "remembered_mappings",
+            "list_people",
+            "get_person",
+            "has_people",
+            "schema_version",
+        }
+    )
+
+    def __init__(self, book: LabBook, person: auth.Person) -> None:
+        self._book = book
+        self._person = person
+
+    @property
+    def person(self) -> auth.Person:
+        """Who acts."""
+        return self._person
+
+    @property
+    def url(self) -> str:
+        """The lab book's URL, password hidden."""
+        return self._book.url
+
+    @property
+    def dialect(self) -> str:
+        """``sqlite`` or ``postgresql``."""
+        return self._book.dialect
+
+    def __repr__(self) -> str:
+        return f"ActingLabBook({self._book.url!r}, as {self._person})"
+
+    def __getattr__(self, name: str) -> Any:
+        if name in ActingLabBook._READS:
+            method = getattr(self._book, name)
+
+            def read(*args: Any, **kwargs: Any) -> Any:
+                self.check(auth.READ)
+                return method(*args, **kwargs)
+
+            read.__doc__ = method.__doc__
+            read.__name__ = name
+            return read
+        raise AttributeError(
+            f"{name!r} is not available to a person acting on the lab book"
+        )
+
+    # -- who acts -----------------------------------------------------------------------------
+    def _actor(self, who: Any = None) -> _Actor:
+        person = self._person
+        if who is not None:
+            name = _person(who)
+            if name.casefold() not in person.names():
+                if person.authenticated:
+                    raise PermissionDeniedError(
+                        f"signed in as {person}; cannot act as {name!r}. Nothing was changed."
+                    )
+                person = auth.Person.single_user(name, role=person.role)
+        return _Actor(person.username, via=person.via, person=person)
+
+    def check(self, action: str, what: str = "") -> None:
+        """Raise PermissionDeniedError unless this person may take ``action`` now."""
+        with self._book._engine.connect() as conn:
+            self._book._check(conn, self._actor(), action, what)
+
+    def may(self, action: str) -> bool:
+        """Whether this person may take ``action`` now (for showing or hiding a control)."""
+        try:
+            self.check(action)
+        except PermissionDeniedError:
+            return False
+        return True
+
+    # -- sessions -----------------------------------------------------------------------------
+    def create_session(
+        self,
+        session: Session,
+        raw_files: Mapping[str, bytes] | None = None,
+        *,
+        reason: str = "created",
+        who: str | None = None,
+    ) -> int:
+        """As :meth:`LabBook.create_session`; the person becomes the session's creator."""
+        return self._book._create_session(
+            session, raw_files, actor=self._actor(who), reason=reason
+        )
+
+    def save_session(
+        self,
+        session: Session,
+        *,
+        base_version: int,
+        reason: str,
+        raw_files: Mapping[str, bytes] | None = None,
+        who: str | None = None,
+    ) -> int:
+        """As :meth:`LabBook.save_session`; a signed-in person saves only sessions they created."""
+        return self._book._save_session(
+            session,
+            base_version=base_version,
+            actor=self._actor(who),
+            reason=reason,
+            raw_files=raw_files,
+        )
+
+    def submit(self, session_id: str, *, comment: str = "", who: str | None = None) -> StoredSession:
+        """As :meth:`LabBook.submit`; a signed-in person submits only sessions they created."""
+        return self._book._submit(session_id, actor=self._actor(who), comment=comment)
+
+    def approve(
+        self,
+        session_id: str,
+        *,
+        comment: str = "",
+        version: int | None = None,
+        who: str | None = None,
+    ) -> StoredSession:
+        """As :meth:`LabBook.approve`: reviewers and admins, four eyes."""
+        return self._book._approve(
+            session_id, actor=self._actor(who), comment=comment, version=version
+        )
+
+    def return_session(
+        self, session_id: str, *, comment: str, who: str | None = None
+    ) -> StoredSession:
+        """As :meth:`LabBook.return_session`: reviewers and admins, four eyes."""
+        return self._book._return_session(session_id, actor=self._actor(who), comment=comment)
+
+    def reopen(self, session_id: str, *, reason: str, who: str | None = None) -> StoredSession:
+        """As :meth:`LabBook.reopen`: reviewers and admins, with a reason."""
+        return self._book._reopen(session_id, actor=self._actor(who), reason=reason)
+
+    def add_raw_file(self, data: bytes, name: str = "", *, sha256: str | None = None) -> str:
+        """As :meth:`LabBook.add_raw_file`."""
+        return self._book._add_raw_file(data, name, sha256=sha256, actor=self._actor())
+
+    def remember_mapping(
+        self, fingerprint: str, mapping: Mapping[str, Any], *, who: str | None = None
+    ) -> None:
+        """As :meth:`LabBook.remember_mapping`."""
+        self._book._remember_mapping(fingerprint, mapping, actor=self._actor(who))
+
+    # -- the lab ------------------------------------------------------------------------------
+    def set_lab_settings(
+        self, overrides: Mapping[str, Any], *, reason: str, who: str | None = None
+    ) -> LabSettings:
+        """As :meth:`LabBook.set_lab_settings`: admins only."""
+        return self._book._set_lab_settings(overrides, actor=self._actor(who), reason=reason)
+
+    def add_person(
+        self,
+        username: str,
+        *,
+        display_name: str,
+        role: str,
+        email: str = "",
+        password: str | None = None,
+        reason: str = "",
+    ) -> Account:
+        """As :meth:`LabBook.add_person`: admins only."""
+        return self._book._add_person(
+            username,
+            display_name=display_name,
+            role=role,
+            email=email,
+            password=password,
+            actor=self._actor(),
+            reason=reason,
+        )
+
+    def set_role(self, username: str, role: str, *, reason: str) -> Account:
+        """As :meth:`LabBook.set_role`: admins only."""
+        return self._book._set_role(username, role, actor=self._actor(), reason=reason)
+
+    def set_active(self, username: str, active: bool, *, reason: str) -> Account:
+        """As :meth:`LabBook.set_active`: admins only."""
+        return self._book._set_active(username, active, actor=self._actor(), reason=reason)
+
+    def set_password(self, username: str, password: str | None, *, reason: str = "") -> Account:
+        """As :meth:`LabBook.set_password`: admins only (see :meth:`change_own_password`)."""
+        return self._book._set_password(username, password, actor=self._actor(), reason=reason)
+
+    def unlock(self, username: str, *, reason: str = "") -> Account:
+        """As :meth:`LabBook.unlock`: admins only."""
+        return self._book._unlock(username, actor=self._actor(), reason=reason)
+
+    def change_own_password(self, current: str, new: str) -> Account:
+        """Change this signed-in person's local password, proving the current one first.
+
+        A wrong current password counts as a failed login (and may lock the account).
+        """
+        person = self._person
+        if person.via != auth.VIA_PASSWORD:
+            raise PermissionDeniedError(
+                f"{person} did not sign in with a local password; nothing was changed"
+            )
+        self.check(auth.CHANGE_OWN_PASSWORD)
+        self._book.login(person.username, current)
+        auth.check_new_password(new, username=person.username, field="new_password")
+        actor = _Actor(person.username, via=person.via, person=person)
+        # One's own password: the people-management check does not apply.
+        return self._book._set_password(
+            person.username, new, actor=replace(actor, person=None, via=person.via), reason="own"
+        )

@@ -520,6 +520,33 @@ def test_schema_matches_the_table_definitions(labbook):
         ], table.name
 
 
+def _create_at_schema_1(book: LabBook, session: Session, *, who: str) -> None:
+    """Write a session as the lab book did at schema step 1 (before the creator column)."""
+    text = json.dumps(session.to_json_dict())
+    at = "2031-05-14T08:00:00+00:00"
+    with book._engine.begin() as conn:
+        conn.execute(
+            sa.text(
+                "INSERT INTO sessions (id, version, status, title, operator, fish_ids, document, "
+                "created_at, updated_at, updated_by) VALUES (:id, 1, 'draft', :title, :op, "
+                "'NW-01', :doc, :at, :at, :who)"
+            ),
+            {"id": session.session_id, "title": session.title, "op": session.operator,
+             "doc": text, "at": at, "who": who},
+        )
+        conn.execute(
+            sa.text("INSERT INTO session_versions VALUES (:id, 1, :doc, :at, :who)"),
+            {"id": session.session_id, "doc": text, "at": at, "who": who},
+        )
+        conn.execute(
+            sa.text(
+                "INSERT INTO audit (session_id, at, who, action, changes, reason, version_after)"
+                " VALUES (:id, :at, :who, 'created', '[]', '', 1)"
+            ),
+            {"id": session.session_id, "at": at, "who": who},
+        )
+
+
 def test_older_schema_is_migrated_and_newer_refused(db_url):
     """A lab book left at schema step 1 is brought up to date when opened."""
     from swimlab.store import _normalise_url
@@ -531,11 +558,15 @@ def test_older_schema_is_migrated_and_newer_refused(db_url):
         engine = sa.create_engine(parsed)
     partial = LabBook(engine, url=db_url, source="test")
     assert partial._migrate(upto=1) == 1
-    partial.create_session(make_session(session_id="early"), who="ana")
+    _create_at_schema_1(partial, make_session(session_id="early"), who="ana")
     partial.close()
     with LabBook.open(db_url) as opened:
         assert opened.schema_version() == LATEST_SCHEMA
         assert opened.get_session("early").version == 1  # kept across the upgrade
+        with opened._engine.connect() as conn:
+            creator = conn.execute(sa.text("SELECT created_by FROM sessions")).scalar()
+        assert creator == "ana"  # step 3 takes a session's creator from its "created" entry
+        assert opened.audit_trail("early")[["who", "via"]].values.tolist() == [["ana", ""]]
         with opened._engine.begin() as conn:
             conn.execute(
                 sa.text("INSERT INTO schema_version VALUES (:v, 'from the future', 'x')"),
