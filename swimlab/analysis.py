@@ -14,7 +14,7 @@ transport → Ucrit, speed–MO2 fits, SMR, MMR, aerobic scope, Uopt → one tab
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -27,6 +27,7 @@ from swimlab import (
     hydrodynamics,
     oxygen,
     performance,
+    protocol_analysis,
     trace,
     uptake,
     water,
@@ -59,6 +60,9 @@ class Analysis:
     concentration: dict[str, np.ndarray] = field(default_factory=dict, repr=False)
     import_report: pd.DataFrame = field(default_factory=pd.DataFrame)
     calibration: Any = None
+    protocol: Any = None
+    """Per-protocol results (:class:`swimlab.protocol_analysis.ProtocolResults`): ramp Umax,
+    endurance times, recovery ratio, EPOC, gait and kinematics, each row named by its protocol."""
 
     def result(self, fish_id: str, quantity: str) -> float | None:
         """Return one derived value (e.g. ``"ucrit"``) for one fish, or ``None``."""
@@ -94,6 +98,7 @@ class Analysis:
             "fits": fits,
             "flags": _records(self.flags),
             "import_report": _records(self.import_report),
+            "protocol": None if self.protocol is None else self.protocol.to_json_dict(),
         }
 
 
@@ -121,6 +126,7 @@ def analyse(
     lab_settings: Mapping[str, Any] | None = None,
     n_boot: int = 500,
     seed: int = 0,
+    first_swim: Analysis | None = None,
 ) -> Analysis:
     """Analyse one session.
 
@@ -137,6 +143,9 @@ def analyse(
         Bootstrap replicates for the speed–MO2 fits' intervals. [-]
     seed
         Seed of every resampling, so results are reproducible. [-]
+    first_swim
+        For a repeat swim (``protocol.type == "repeat_ucrit"``), the analysis of the first swim
+        of the same fish, for the recovery ratio; None otherwise.
 
     Returns
     -------
@@ -199,7 +208,7 @@ def analyse(
         sample_interval_s,
     )
 
-    return Analysis(
+    base = Analysis(
         session_id=session.session_id,
         settings=settings,
         water=water_props,
@@ -216,6 +225,9 @@ def analyse(
         import_report=import_report,
         calibration=calibration,
     )
+    # the protocol stage: ramp, endurance, repeat swim, recovery, gait and kinematics
+    protocol, protocol_flags = protocol_analysis.analyse_protocol(session, base, first_swim=first_swim)
+    return replace(base, protocol=protocol, flags=checks.flags_table(flags + protocol_flags))
 
 
 # --------------------------------------------------------------------------------------------

@@ -167,6 +167,9 @@ RULES: dict[str, Rule] = {
         Rule("GROUP_TRIAL", "info", "Several fish swum together",
              "Comparability: schooling changes swimming cost; MO2 is per capita.",
              "Report per-capita MO2 with this caveat.", "Common practice", None),
+        Rule("PROTOCOL_RESULT_NOT_COMPUTED", "invalid", "Protocol result not computed from incomplete input",
+             "Protocol results: a value computed from missing or contradictory entries would mislead.",
+             "Enter what the message names (the field is given), then analyse again.", "Record keeping", None),
     ]
 }
 

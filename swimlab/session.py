@@ -13,8 +13,8 @@ Validation gives every problem at once: :func:`validate_session` returns the ses
 
 from __future__ import annotations
 
-import uuid
 import datetime as dt
+import uuid
 from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
@@ -44,6 +44,12 @@ EVENT_KINDS = (
     "note",
 )
 STATUSES = ("draft", "submitted", "approved", "returned")
+RECOVERY_BASELINES = {
+    "pre_exercise": "routine MO2 of the measure phases before the exercise began",
+    "smr": "standard metabolic rate (entered, or this session's SMR)",
+    "fitted_asymptote": "the asymptote of the decay fitted to the recovery phases",
+}
+"""Baselines an EPOC can be measured from (the keys of :data:`swimlab.protocols.recovery.BASELINE_METHODS`)."""
 
 
 class _Model(BaseModel):
@@ -161,6 +167,13 @@ class Protocol(_Model):
     fatigue_time_s: float | None = Field(
         None, ge=0, description="Fatigue on the trace clock [s]; None if not reached or not recorded"
     )
+    recovery_baseline: Literal["pre_exercise", "smr", "fitted_asymptote"] | None = Field(
+        None, description="Baseline of a recovery (EPOC) analysis; see RECOVERY_BASELINES"
+    )
+    recovery_baseline_mg_kg_h: float | None = Field(
+        None, gt=0, le=5000,
+        description="Entered SMR used as the recovery baseline (e.g. from another trial) [mg O2 kg-1 h-1]",
+    )
 
 
 class TrialConditions(_Model):
@@ -173,6 +186,7 @@ class TrialConditions(_Model):
     habituation_speed_cm_s: float | None = Field(None, ge=0)
     time_of_day: str = ""
     photoperiod: str = ""
+    treatment: str = Field("", description="Treatment or group label, for comparisons across sessions")
 
 
 class SensorCalibration(_Model):
@@ -211,6 +225,18 @@ class Event(_Model):
     fish_id: str = ""
     description: str = ""
     count: int | None = Field(None, ge=0)
+
+
+class TailBeatRecord(_Model):
+    """Tail beats counted at one speed step: over a counting window, or over video frames."""
+
+    step: int = Field(ge=1, description="Speed step (1-based; 1 for an endurance swim)")
+    fish_id: str = ""
+    tail_beat_count: int = Field(ge=0, description="Full tail-beat cycles counted [-]")
+    window_s: float | None = Field(None, gt=0, le=3600, description="Counting window [s]")
+    frames: int | None = Field(None, gt=0, description="Video frames spanned by the counted beats [-]")
+    frame_rate_hz: float | None = Field(None, gt=0, le=100000, description="Video frame rate [1/s]")
+    amplitude_cm: float | None = Field(None, ge=0, le=300, description="Peak-to-peak tail-tip amplitude [cm]")
 
 
 class RawFileRef(_Model):
@@ -256,6 +282,7 @@ class Session(_Model):
     blanks: list[Blank] = Field(default_factory=list)
     background_method: Literal["none", "constant", "linear", "exponential"] = "linear"
     events: list[Event] = Field(default_factory=list)
+    kinematics: list[TailBeatRecord] = Field(default_factory=list)
     raw_files: list[RawFileRef] = Field(default_factory=list)
     exclusions: list[PhaseExclusion] = Field(default_factory=list)
     settings: dict[str, float | None] = Field(default_factory=dict)
@@ -382,6 +409,37 @@ def cross_checks(session: Session) -> list[Problem]:
             add("protocol.time_limit_min", "an endurance protocol needs a time limit")
     if protocol.type == "repeat_ucrit" and protocol.rest_interval_min is None:
         add("protocol.rest_interval_min", "a repeat swim needs the rest interval since the first swim")
+    if protocol.first_swim_session_id is not None and protocol.first_swim_session_id == session.session_id:
+        add("protocol.first_swim_session_id", "names this session itself; give the session of the first swim")
+    if (protocol.type == "endurance" and protocol.time_limit_min is not None
+            and protocol.fatigue_time_s is not None
+            and protocol.fatigue_time_s - protocol.start_s > protocol.time_limit_min * 60.0 + 1e-9):
+        add("protocol.fatigue_time_s",
+            f"fatigue {protocol.fatigue_time_s - protocol.start_s:g} s after the start is beyond the time limit "
+            f"of {protocol.time_limit_min:g} min; a fish still swimming at the limit has no fatigue time")
+    if protocol.recovery_baseline_mg_kg_h is not None and protocol.recovery_baseline != "smr":
+        add("protocol.recovery_baseline_mg_kg_h",
+            "an entered baseline is an SMR; set the recovery baseline to 'smr' or leave the value out")
+    n_steps = len(protocol.steps)
+    for i, record in enumerate(session.kinematics):
+        where = f"kinematics.{i}"
+        if record.window_s is None and record.frames is None:
+            add(f"{where}.window_s", "a tail-beat count needs its counting window [s] (or video frames and the frame rate)")
+        if record.window_s is not None and record.frames is not None:
+            add(f"{where}.frames", "give either a counting window or video frames, not both")
+        if record.frames is not None and record.frame_rate_hz is None:
+            add(f"{where}.frame_rate_hz", "video frames need the frame rate [1/s]")
+        if protocol.type == "endurance":
+            if record.step != 1:
+                add(f"{where}.step", f"an endurance swim has one speed, step 1; got step {record.step}")
+        elif n_steps == 0:
+            add(f"{where}.step", f"a {protocol.type} protocol has no speed steps for tail-beat records")
+        elif record.step > n_steps:
+            add(f"{where}.step", f"the protocol has {n_steps} step(s); got step {record.step}")
+        if record.fish_id and record.fish_id not in ids:
+            add(f"{where}.fish_id", f"no fish with id {record.fish_id!r}; fish are {ids}")
+        if not record.fish_id and len(ids) > 1:
+            add(f"{where}.fish_id", f"the session holds {len(ids)} fish; say which fish was counted")
     cycle = protocol.cycle
     if cycle.source == "schedule":
         if cycle.flush_s is None:
