@@ -15,6 +15,10 @@ Commands
     Check a bundle without importing it.
 ``schema [--write]``
     Print the JSON Schema of a bundle's session.json (or rewrite the committed file).
+``people add|list|set-role|unlock|set-password|set-email|deactivate|reactivate …``
+    Manage the people of a lab server (accounts, roles, local passwords, lock-outs). Passwords
+    are read without echo, or from standard input with ``--password-stdin``; never from the
+    command line.
 
 ``--db URL`` chooses the lab book (otherwise as :func:`swimlab.store.resolve_database_url`);
 ``--who NAME`` names the person acting, for the audit trail (default: ``SWIMLAB_USER`` or the
@@ -158,6 +162,7 @@ def build_parser() -> argparse.ArgumentParser:
         "--write", action="store_true", help="rewrite the schema file committed inside the package"
     )
     cmd.set_defaults(run=_schema)
+    _add_people_parser(commands)
     return parser
 
 
@@ -331,6 +336,209 @@ def _schema(args: argparse.Namespace) -> int:
         print(f"wrote {write_schema()}")
     else:
         sys.stdout.write(schema_text())
+    return EXIT_OK
+
+
+# --------------------------------------------------------------------------------------------
+# people (lab-server mode)
+# --------------------------------------------------------------------------------------------
+
+
+def _add_people_parser(commands) -> None:
+    """``people …``: the accounts of a lab server. Run on the machine that holds the lab book."""
+    from swimlab.auth import ROLES
+
+    people = commands.add_parser(
+        "people",
+        help="manage the people of a lab server",
+        description="Add people, list them, change roles, set passwords and lift lock-outs. "
+        "Everything is recorded in the lab book's audit trail under --who. This command acts "
+        "with the lab book's own database access: keep it to the server's administrators.",
+    )
+    sub = people.add_subparsers(dest="people_command", metavar="ACTION", parser_class=_Parser)
+    sub.required = True
+
+    def password_options(cmd, *, removable: bool) -> None:
+        group = cmd.add_mutually_exclusive_group()
+        group.add_argument(
+            "--password-stdin",
+            action="store_true",
+            help="read the password from the first line of standard input (for scripts)",
+        )
+        group.add_argument(
+            "--no-password" if not removable else "--remove",
+            dest="no_password",
+            action="store_true",
+            help="no local password: the person signs in through single sign-on only"
+            if not removable
+            else "remove the local password (single sign-on only)",
+        )
+
+    cmd = sub.add_parser(
+        "add",
+        help="add a person",
+        description="Add a person. Without --password-stdin or --no-password the password is "
+        "asked twice, without echo. It must be at least 12 characters.",
+    )
+    cmd.add_argument("username", metavar="USERNAME", help="account name (letters, digits, . _ @ + -)")
+    cmd.add_argument("--name", required=True, metavar="NAME", help="name shown on pages and reports")
+    cmd.add_argument("--role", required=True, choices=ROLES)
+    cmd.add_argument("--email", default="", help="address the single-sign-on service vouches for")
+    cmd.add_argument("--reason", default="", help="why, for the audit trail")
+    password_options(cmd, removable=False)
+    cmd.set_defaults(run=_people_add)
+
+    cmd = sub.add_parser("list", help="list the people", description="List the people.")
+    cmd.set_defaults(run=_people_list)
+
+    cmd = sub.add_parser("set-role", help="change a person's role", description="Change a role.")
+    cmd.add_argument("username", metavar="USERNAME")
+    cmd.add_argument("role", choices=ROLES)
+    cmd.add_argument("--reason", required=True, help="why, for the audit trail")
+    cmd.set_defaults(run=_people_set_role)
+
+    cmd = sub.add_parser(
+        "unlock",
+        help="lift a lock-out after failed logins",
+        description="Lift a lock-out before it expires.",
+    )
+    cmd.add_argument("username", metavar="USERNAME")
+    cmd.add_argument("--reason", default="", help="why, for the audit trail")
+    cmd.set_defaults(run=_people_unlock)
+
+    cmd = sub.add_parser(
+        "set-password",
+        help="set or remove a person's local password",
+        description="Set a local password (asked twice without echo, or --password-stdin), or "
+        "remove it with --remove. Lifts a lock-out.",
+    )
+    cmd.add_argument("username", metavar="USERNAME")
+    cmd.add_argument("--reason", default="", help="why, for the audit trail")
+    password_options(cmd, removable=True)
+    cmd.set_defaults(run=_people_set_password)
+
+    cmd = sub.add_parser(
+        "set-email", help="change the single-sign-on address", description="Change the e-mail."
+    )
+    cmd.add_argument("username", metavar="USERNAME")
+    cmd.add_argument("email", metavar="EMAIL", help='address, or "" for none')
+    cmd.set_defaults(run=_people_set_email)
+
+    for name, active in (("deactivate", False), ("reactivate", True)):
+        cmd = sub.add_parser(
+            name,
+            help=f"{name} a person" + ("" if active else " (they can no longer sign in or act)"),
+            description="People are never deleted: the audit trail names them.",
+        )
+        cmd.add_argument("username", metavar="USERNAME")
+        cmd.add_argument("--reason", required=True, help="why, for the audit trail")
+        cmd.set_defaults(run=_people_set_active, active=active)
+
+
+def _new_password(args: argparse.Namespace, username: str) -> str | None:
+    """The password to set: none, the first line of standard input, or asked twice."""
+    from swimlab.auth import check_new_password
+    from swimlab.errors import InputError
+
+    if args.no_password:
+        return None
+    if args.password_stdin:
+        password = sys.stdin.readline().rstrip("\r\n")
+    else:
+        if not sys.stdin.isatty():
+            raise InputError(
+                "cannot ask for the password: standard input is not a terminal; use "
+                "--password-stdin (or --no-password)",
+                field="password",
+            )
+        password = getpass.getpass(f"password for {username}: ")
+        if getpass.getpass("the same again: ") != password:
+            raise InputError("the two passwords differ; nothing was changed", field="password")
+    return check_new_password(password, username=username)
+
+
+def _acting(args: argparse.Namespace) -> str:
+    from swimlab.errors import InputError
+
+    who = _who(args)
+    if not who.strip():
+        raise InputError("name the person acting with --who (or SWIMLAB_USER)", field="who")
+    return who
+
+
+def _people_add(args: argparse.Namespace) -> int:
+    from swimlab.auth import check_username
+
+    username = check_username(args.username)
+    password = _new_password(args, username)
+    with _open_book(args) as book:
+        account = book.add_person(
+            username,
+            display_name=args.name,
+            role=args.role,
+            email=args.email,
+            password=password,
+            who=_acting(args),
+            reason=args.reason,
+        )
+    how = "a local password" if account.local_password else "no local password"
+    print(f"added {account.display_name} ({account.username}) as {account.role}, with {how}")
+    return EXIT_OK
+
+
+def _people_list(args: argparse.Namespace) -> int:
+    with _open_book(args) as book:
+        table = book.list_people()
+    if table.empty:
+        print(f"nobody has been added to {book.url}; start with: swimlab people add NAME "
+              "--name 'Full Name' --role admin")
+        return EXIT_OK
+    shown = table.drop(columns=["created_at"]).assign(
+        locked_until=table["locked_until"].str.slice(0, 16).str.replace("T", " "),
+        last_login_at=table["last_login_at"].str.slice(0, 16).str.replace("T", " "),
+    )
+    print(shown.to_string(index=False))
+    return EXIT_OK
+
+
+def _people_set_role(args: argparse.Namespace) -> int:
+    with _open_book(args) as book:
+        account = book.set_role(args.username, args.role, who=_acting(args), reason=args.reason)
+    print(f"{account.username} is now {account.role}")
+    return EXIT_OK
+
+
+def _people_unlock(args: argparse.Namespace) -> int:
+    with _open_book(args) as book:
+        account = book.unlock(args.username, who=_acting(args), reason=args.reason)
+    print(f"{account.username} is unlocked")
+    return EXIT_OK
+
+
+def _people_set_password(args: argparse.Namespace) -> int:
+    from swimlab.auth import check_username
+
+    username = check_username(args.username)
+    password = _new_password(args, username)
+    with _open_book(args) as book:
+        book.set_password(username, password, who=_acting(args), reason=args.reason)
+    print(f"{username}: local password {'set' if password is not None else 'removed'}")
+    return EXIT_OK
+
+
+def _people_set_email(args: argparse.Namespace) -> int:
+    with _open_book(args) as book:
+        account = book.set_email(args.username, args.email, who=_acting(args))
+    print(f"{account.username}: e-mail {account.email or '(none)'}")
+    return EXIT_OK
+
+
+def _people_set_active(args: argparse.Namespace) -> int:
+    with _open_book(args) as book:
+        account = book.set_active(
+            args.username, args.active, who=_acting(args), reason=args.reason
+        )
+    print(f"{account.username} is {'active' if account.active else 'deactivated'}")
     return EXIT_OK
 
 
