@@ -50,6 +50,28 @@ else:
         col.caption(shown["Unit"])
     st.dataframe(ui_forms.results_display(mine), hide_index=True, width="stretch")
 
+# --- protocol results (ramp, endurance, repeat swim, recovery, gait, kinematics) -------------
+protocol = getattr(analysis, "protocol", None)
+if protocol is not None:
+    from swimlab.protocol_analysis import PART_LABELS
+
+    presults = protocol.results
+    own_protocol = presults[presults["fish_id"].astype(str) == str(fish_id)] if not presults.empty else presults
+    for part in protocol.parts:
+        rows = own_protocol[own_protocol["part"] == part]
+        if rows.empty:
+            continue
+        st.subheader(PART_LABELS.get(part, part))
+        st.dataframe(ui_forms.results_display(rows), hide_index=True, width="stretch")
+    for name, table in (protocol.tables or {}).items():
+        if table is not None and not table.empty:
+            with st.expander(f"Table: {name.replace('_', ' ')}"):
+                st.dataframe(table, hide_index=True, width="stretch")
+    for problem in protocol.problems:
+        if not problem.fish_id or str(problem.fish_id) == str(fish_id):
+            st.info(f"Not computed ({PART_LABELS.get(problem.part, problem.part)}): {problem.message}"
+                    + (f" — field `{problem.field}`" if problem.field else ""))
+
 # --- step table -----------------------------------------------------------------------------
 st.subheader("Steps")
 steps = analysis.steps

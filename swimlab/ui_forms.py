@@ -760,7 +760,8 @@ def _significant(value: Any, digits: int = 4) -> str:
 def results_display(results: pd.DataFrame) -> pd.DataFrame:
     """Return the results table as text: Quantity, Value, Unit, 95 % interval, Method, Note.
 
-    Missing values and intervals are blank rather than "None" or "nan".
+    Missing values and intervals are blank rather than "None" or "nan". A ``label`` column, where
+    the table has one (protocol results), names the quantity.
     """
     columns = ["Quantity", "Value", "Unit", "95 % interval", "Method", "Note"]
     if results is None or results.empty:
@@ -770,7 +771,7 @@ def results_display(results: pd.DataFrame) -> pd.DataFrame:
         lo, hi = _significant(getattr(row, "ci_low", None)), _significant(getattr(row, "ci_high", None))
         note = getattr(row, "note", "")
         rows.append({
-            "Quantity": QUANTITY_NAMES.get(row.quantity, row.quantity),
+            "Quantity": getattr(row, "label", None) or QUANTITY_NAMES.get(row.quantity, row.quantity),
             "Value": _significant(row.value),
             "Unit": UNIT_NAMES.get(str(row.unit), str(row.unit)),
             "95 % interval": f"{lo} – {hi}" if lo and hi else "",

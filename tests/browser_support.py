@@ -64,11 +64,12 @@ def logger_file(session: dict[str, Any], *, seed: int = 7) -> tuple[str, bytes]:
 
     protocol, cycle = session["protocol"], session["protocol"]["cycle"]
     channels = [f["chamber"] for f in session["fish"]]
+    steps = protocol.get("steps") or [{"speed_cm_s": protocol["set_speed_cm_s"], "duration_min": protocol["time_limit_min"]}]
     trial = sim.simulate_trial(
         seed=seed,
         channels=channels,
-        speeds_m_s=[s["speed_cm_s"] / 100.0 for s in protocol["steps"]],
-        step_duration_s=[s["duration_min"] * 60.0 for s in protocol["steps"]],
+        speeds_m_s=[s["speed_cm_s"] / 100.0 for s in steps],
+        step_duration_s=[s["duration_min"] * 60.0 for s in steps],
         flush_s=cycle["flush_s"], wait_s=cycle["wait_s"], measure_s=cycle["measure_s"],
         respirometer_volume_l=session["flume"]["respirometer_volume_l"],
         fish_mass_g={f["chamber"]: f["mass_g"] for f in session["fish"]},

@@ -305,6 +305,22 @@ def test_checks_and_results_pages(lab):
 
 
 @pytest.mark.slow
+def test_endurance_swim_results(lab):
+    data = typical_session()
+    data["protocol"].update(type="endurance", steps=[], set_speed_cm_s=45.0, time_limit_min=120.0,
+                            fatigue_time_s=5400.0)
+    session = _store(lab, protocol=data["protocol"])
+    at = _open(_app(), session.session_id)
+    assert "Every value is valid." in _texts(at.success)
+    _attach_trace(at, data)
+    at.switch_page("app_pages/results.py").run()
+    assert not at.exception, at.exception
+    assert "Fixed-speed endurance" in [h.value for h in at.subheader]
+    shown = at.dataframe[0].value
+    assert shown["Quantity"].str.startswith("Endurance").any()
+
+
+@pytest.mark.slow
 def test_submit_then_four_eyes_review(lab):
     session = _store(lab)
     at = _open(_app(), session.session_id)

@@ -312,3 +312,9 @@ def test_when_text():
 def test_tail_beat_problems_map_to_their_grid():
     loc = uf.locate_problem(Problem(field="kinematics.1.window_s", message="is wrong"))
     assert (loc.section, loc.row, loc.column) == ("kinematics", 1, "Counting window [s]")
+
+
+def test_results_display_prefers_a_label():
+    rows = pd.DataFrame([{"fish_id": "KB-03", "quantity": "ramp_umax", "label": "Ramp Umax", "value": 61.2,
+                          "unit": "cm/s", "method": "last speed", "ci_low": np.nan, "ci_high": np.nan, "note": ""}])
+    assert uf.results_display(rows)["Quantity"].tolist() == ["Ramp Umax"]
