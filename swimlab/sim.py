@@ -31,20 +31,30 @@ and for the flushes (exponential relaxation towards an equilibrium held at its m
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy import signal
+from scipy import optimize, signal
 
 from swimlab import _validate, oxygen
 from swimlab.errors import InputError
 from swimlab.uptake import BlankRun
 
-__all__ = ["MO2_MODELS", "SimulatedTrial", "TrialTruth", "mo2_curve", "simulate_trial"]
+__all__ = [
+    "MO2_MODELS",
+    "ProtocolTrial",
+    "SimulatedTrial",
+    "TrialTruth",
+    "mo2_curve",
+    "simulate_endurance_trial",
+    "simulate_ramp_trial",
+    "simulate_recovery_trial",
+    "simulate_trial",
+]
 
 MO2_MODELS = ("exponential", "power")
 """Valid ``mo2_model`` values of :func:`simulate_trial`."""
@@ -243,6 +253,8 @@ def simulate_trial(
     oxygen_decimals: int = 3,
     temperature_decimals: int = 2,
     start_time: datetime = _DEFAULT_START,
+    speed_profile: Callable[[np.ndarray], np.ndarray] | None = None,
+    mo2_profile: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None,
 ) -> SimulatedTrial:
     """Simulate one swim-tunnel trial in an intermittent-flow respirometer.
 
@@ -301,6 +313,17 @@ def simulate_trial(
         Resolution of the logged readings.
     start_time
         Clock time of the first reading.
+    speed_profile
+        Water speed at each time [m/s] from the time since the first reading [s], replacing the
+        steps' constant speeds (the steps still say when the fish is in the respirometer and
+        number the phases); e.g. a ramp. None: each step's speed.
+    mo2_profile
+        True MO2 [mg O2 kg⁻¹ h⁻¹] from (time [s], speed [m/s]) at each reading, replacing the
+        speed–MO2 curve (times the individual factor); e.g. a recovery after exhaustion. None:
+        :func:`mo2_curve` of the speed.
+
+    With a profile, a phase's true MO2 (and speed) in ``truth.phases`` is its mean over the
+    phase's readings, since it is not constant.
 
     Returns
     -------
@@ -356,6 +379,11 @@ def simulate_trial(
     step_idx = np.searchsorted(step_start, t, side="right") - 1
     in_steps = (t >= before) & (t < before + steps_total)
     speed_t = np.where(in_steps, speeds[np.clip(step_idx, 0, speeds.size - 1)], 0.0)
+    if speed_profile is not None:
+        speed_t = np.where(in_steps, np.broadcast_to(np.asarray(speed_profile(t), dtype=float), t.shape), 0.0)
+        if np.any(~np.isfinite(speed_t) | (speed_t < 0)):
+            raise InputError("speed_profile must give a finite speed, zero or more [m/s], at every time",
+                             field="speed_profile")
 
     struggle_at = _pairs("struggling", struggling, channels)
     failed_at = _pairs("failed_flushes", failed_flushes, channels)
@@ -394,7 +422,14 @@ def simulate_trial(
 
     for c in channels:
         v_water = volume[c] - mass[c] / 1000.0
-        mo2_kg_h = np.where(in_steps, factor[c] * np.asarray(mo2_curve(speed_t, mo2_model, mo2_params)), 0.0)
+        if mo2_profile is None:
+            mo2_kg_h = np.where(in_steps, factor[c] * np.asarray(mo2_curve(speed_t, mo2_model, mo2_params)), 0.0)
+        else:
+            true_mo2 = np.broadcast_to(np.asarray(mo2_profile(t, speed_t), dtype=float), t.shape)
+            if np.any(~np.isfinite(true_mo2[in_steps]) | (true_mo2[in_steps] <= 0)):
+                raise InputError("mo2_profile must give a finite MO2 above zero [mg O2 kg-1 h-1] while the fish is in",
+                                 field="mo2_profile")
+            mo2_kg_h = np.where(in_steps, factor[c] * true_mo2, 0.0)
         fish_rate = mo2_kg_h * mass[c] / 1000.0 / 3600.0 / np.where(in_steps, v_water, volume[c])
         burst = np.zeros(n, dtype=bool)
         burst_where = {}
@@ -475,7 +510,9 @@ def simulate_trial(
             s_b = int(step_idx[i1]) if in_steps[i1] else -1
             straddles = bool((in_steps[i0] or in_steps[i1]) and s_a != s_b)
             step = s_a + 1 if present and not straddles else 0
-            mo2_true = float(mo2_kg_h[i0]) if present and not straddles else 0.0
+            steady = mo2_profile is None and speed_profile is None
+            level = float(mo2_kg_h[i0]) if steady else float(np.mean(mo2_kg_h[i0:i1 + 1]))
+            mo2_true = level if present and not straddles else 0.0
             water = v_water if present else volume[c]
             fish_slope = -mo2_true * mass[c] / 1000.0 / 3600.0 / water if present else 0.0
             bg_slope = -float(bg_rate(np.array([mid_t]))[0])
@@ -487,7 +524,8 @@ def simulate_trial(
                 "measure_start_s": float(a),
                 "measure_end_s": float(b),
                 "step": step,
-                "speed_m_s": float(speed_t[i0]) if present else 0.0,
+                "speed_m_s": (float(speed_t[i0]) if speed_profile is None else float(np.mean(speed_t[i0:i1 + 1])))
+                if present else 0.0,
                 "fish_present": present,
                 "mo2_mg_kg_h": mo2_true,
                 "mo2_mg_h": mo2_true * mass[c] / 1000.0,
@@ -607,3 +645,217 @@ def simulate_trial(
         pump=pump,
         truth=truth,
     )
+
+
+# --------------------------------------------------------------------------------------------
+# Protocol trials: ramp, endurance, post-exercise recovery
+# --------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class ProtocolTrial:
+    """A simulated trial of a protocol beyond the step test, with the protocol's own truth.
+
+    Attributes
+    ----------
+    protocol
+        ``"ramp"``, ``"endurance"`` or ``"recovery"``.
+    simulated
+        The :class:`SimulatedTrial` (logger file, readings, per-phase truth).
+    start_s
+        Start of the ramp, of the set speed, or of the exercise on the trace clock. [s]
+    fatigue_time_s
+        Fatigue (exhaustion) on the trace clock, or None for a fish still swimming at the
+        limit. [s]
+    truth
+        The protocol's true values: ramp ``umax_m_s``, ``ramp_rate_m_s2``, ``start_speed_m_s``,
+        ``time_to_fatigue_s``; endurance ``set_speed_m_s``, ``time_limit_s``, ``time_s``,
+        ``fatigued``; recovery ``baseline_mg_kg_h``, ``amplitudes_mg_kg_h``, ``rates_per_s``,
+        ``epoc_mg_kg`` (to full recovery), ``epoc_recorded_mg_kg`` (to the end of the record),
+        ``t50_s``, ``t95_s``.
+    """
+
+    protocol: str
+    simulated: SimulatedTrial = field(repr=False)
+    start_s: float
+    fatigue_time_s: float | None
+    truth: dict
+
+
+def _excess(t: np.ndarray, amplitudes: np.ndarray, rates: np.ndarray) -> np.ndarray:
+    return np.sum(amplitudes[:, None] * np.exp(-rates[:, None] * np.atleast_1d(t)[None, :]), axis=0)
+
+
+def simulate_ramp_trial(
+    *,
+    seed: int,
+    ramp_rate_m_s2: float,
+    start_speed_m_s: float,
+    time_to_fatigue_s: float,
+    rest_s: float = 3600.0,
+    after_s: float = 1800.0,
+    rest_speed_m_s: float = 0.05,
+    **kwargs: Any,
+) -> ProtocolTrial:
+    """A ramp (constant-acceleration) test: rest, then U = U₀ + a (t − t₀) until fatigue, then rest.
+
+    Parameters
+    ----------
+    seed
+        Seed of the random generator.
+    ramp_rate_m_s2, start_speed_m_s
+        Rate at which the speed rises, and the speed at the ramp's start. [m/s²], [m/s]
+    time_to_fatigue_s
+        Time from the ramp's start to fatigue. [s]
+    rest_s, after_s
+        Rest before the ramp and recovery after fatigue, at ``rest_speed_m_s``. [s]
+    rest_speed_m_s
+        Speed of the rest periods. [m/s]
+    **kwargs
+        Passed on to :func:`simulate_trial` (cycle, fish, MO2 curve, noise…).
+
+    Returns
+    -------
+    ProtocolTrial
+        Truth: Umax = U₀ + a · t_fatigue (the definition of a constant acceleration).
+    """
+    rate = float(_validate.positive("ramp_rate_m_s2", ramp_rate_m_s2, "m/s²"))
+    u0 = float(_validate.non_negative("start_speed_m_s", start_speed_m_s, "m/s"))
+    t_fat = float(_validate.positive("time_to_fatigue_s", time_to_fatigue_s, "s"))
+    rest = float(_validate.positive("rest_s", rest_s, "s"))
+    after = float(_validate.positive("after_s", after_s, "s"))
+    u_rest = float(_validate.non_negative("rest_speed_m_s", rest_speed_m_s, "m/s"))
+    end = rest + t_fat
+
+    def speed(t: np.ndarray) -> np.ndarray:
+        return np.where((t >= rest) & (t < end), u0 + rate * (t - rest), u_rest)
+
+    simulated = simulate_trial(seed=seed, speeds_m_s=(u_rest, u0, u_rest), step_duration_s=(rest, t_fat, after),
+                               speed_profile=speed, **kwargs)
+    truth = {"umax_m_s": u0 + rate * t_fat, "ramp_rate_m_s2": rate, "start_speed_m_s": u0,
+             "time_to_fatigue_s": t_fat}
+    return ProtocolTrial("ramp", simulated, rest, end, truth)
+
+
+def simulate_endurance_trial(
+    *,
+    seed: int,
+    set_speed_m_s: float,
+    time_limit_s: float,
+    fatigue_after_s: float | None,
+    rest_s: float = 1800.0,
+    after_s: float = 1200.0,
+    rest_speed_m_s: float = 0.05,
+    **kwargs: Any,
+) -> ProtocolTrial:
+    """A fixed-speed endurance swim: rest, the set speed until fatigue or the time limit, rest.
+
+    Parameters
+    ----------
+    seed
+        Seed of the random generator.
+    set_speed_m_s
+        The set speed. [m/s]
+    time_limit_s
+        The trial's time limit. [s]
+    fatigue_after_s
+        Time from the start of the set speed to fatigue, or None (or a time beyond the limit)
+        for a fish still swimming when the limit ends. [s]
+    rest_s, after_s, rest_speed_m_s
+        Rest before and after, and its speed. [s], [s], [m/s]
+    **kwargs
+        Passed on to :func:`simulate_trial`.
+
+    Returns
+    -------
+    ProtocolTrial
+        Truth: ``time_s`` = fatigue time, or the limit for a fish still swimming (censored).
+    """
+    u = float(_validate.positive("set_speed_m_s", set_speed_m_s, "m/s"))
+    limit = float(_validate.positive("time_limit_s", time_limit_s, "s"))
+    fatigued = fatigue_after_s is not None and float(fatigue_after_s) <= limit
+    swim = float(_validate.positive("fatigue_after_s", fatigue_after_s, "s")) if fatigued else limit
+    rest = float(_validate.positive("rest_s", rest_s, "s"))
+    simulated = simulate_trial(seed=seed, speeds_m_s=(rest_speed_m_s, u, rest_speed_m_s),
+                               step_duration_s=(rest, swim, after_s), **kwargs)
+    truth = {"set_speed_m_s": u, "time_limit_s": limit, "time_s": swim, "fatigued": fatigued}
+    return ProtocolTrial("endurance", simulated, rest, rest + swim if fatigued else None, truth)
+
+
+def simulate_recovery_trial(
+    *,
+    seed: int,
+    exercise_speeds_m_s: Sequence[float],
+    exercise_step_s: float,
+    epoc_amplitudes_mg_kg_h: Sequence[float],
+    epoc_rates_per_s: Sequence[float],
+    rest_s: float = 7200.0,
+    recovery_s: float = 14400.0,
+    rest_speed_m_s: float = 0.05,
+    mo2_model: str = "exponential",
+    mo2_params: Sequence[float] = (90.0, 2.0),
+    **kwargs: Any,
+) -> ProtocolTrial:
+    """Rest, exercise to exhaustion in speed steps, then recovery with a known EPOC.
+
+    Parameters
+    ----------
+    seed
+        Seed of the random generator.
+    exercise_speeds_m_s, exercise_step_s
+        Speeds of the exercise steps and the duration of each; exhaustion is at the end of the
+        last. [m/s], [s]
+    epoc_amplitudes_mg_kg_h, epoc_rates_per_s
+        After exhaustion MO2(t) = B + Σ A_i e^(−k_i t), t from exhaustion, with B the MO2 at
+        rest, ``mo2_curve(rest_speed_m_s)``. [mg O2 kg⁻¹ h⁻¹], [1/s]
+    rest_s, recovery_s, rest_speed_m_s
+        Rest before the exercise, recovery after it, and their speed. [s], [s], [m/s]
+    mo2_model, mo2_params
+        MO2 before exhaustion (:func:`mo2_curve`).
+    **kwargs
+        Passed on to :func:`simulate_trial`.
+
+    Returns
+    -------
+    ProtocolTrial
+        Truth: the baseline B, EPOC = Σ A_i / k_i / 3600 s/h (the integral of the excess from
+        exhaustion to infinity) [mg O2 kg⁻¹], the same to the end of the record, and the times at
+        which the excess has fallen to 50 % and 5 % of its value at exhaustion [s].
+    """
+    speeds = _validate.positive("exercise_speeds_m_s", exercise_speeds_m_s, "m/s").reshape(-1)
+    step = float(_validate.positive("exercise_step_s", exercise_step_s, "s"))
+    amps = _validate.positive("epoc_amplitudes_mg_kg_h", epoc_amplitudes_mg_kg_h, "mg O2 kg-1 h-1").reshape(-1)
+    rates = _validate.positive("epoc_rates_per_s", epoc_rates_per_s, "1/s").reshape(-1)
+    if amps.shape != rates.shape:
+        raise InputError("give one rate per amplitude", field="epoc_rates_per_s")
+    rest = float(_validate.positive("rest_s", rest_s, "s"))
+    rec = float(_validate.positive("recovery_s", recovery_s, "s"))
+    exhaustion = rest + step * speeds.size
+    baseline = float(mo2_curve(float(rest_speed_m_s), mo2_model, mo2_params))
+
+    def mo2(t: np.ndarray, u: np.ndarray) -> np.ndarray:
+        before = np.asarray(mo2_curve(u, mo2_model, mo2_params), dtype=float)
+        after = baseline + _excess(np.clip(t - exhaustion, 0.0, None), amps, rates)
+        return np.where(t >= exhaustion, after, before)
+
+    simulated = simulate_trial(
+        seed=seed, speeds_m_s=(rest_speed_m_s, *speeds, rest_speed_m_s),
+        step_duration_s=(rest, *([step] * speeds.size), rec), mo2_model=mo2_model, mo2_params=mo2_params,
+        mo2_profile=mo2, **kwargs)
+
+    def time_to(fraction: float) -> float:
+        target = (1.0 - fraction) * float(amps.sum())
+        upper = -np.log(1.0 - fraction) / float(rates.min())
+        return float(optimize.brentq(lambda x: float(_excess(np.array([x]), amps, rates)[0]) - target, 0.0, upper,
+                                     xtol=1e-6))
+
+    truth = {
+        "baseline_mg_kg_h": baseline,
+        "amplitudes_mg_kg_h": [float(a) for a in amps],
+        "rates_per_s": [float(k) for k in rates],
+        "epoc_mg_kg": float(np.sum(amps / rates)) / 3600.0,
+        "epoc_recorded_mg_kg": float(np.sum(amps / rates * (1.0 - np.exp(-rates * rec)))) / 3600.0,
+        "t50_s": time_to(0.5),
+        "t95_s": time_to(0.95),
+    }
+    return ProtocolTrial("recovery", simulated, rest, exhaustion, truth)
