@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import tempfile
 from pathlib import Path
 
@@ -104,18 +105,32 @@ if cols[1].button("Open this session", key="lb_open", disabled=chosen is None, t
 # --- new ------------------------------------------------------------------------------------
 st.subheader("New session")
 cols = st.columns([2, 3, 1])
-how = cols[0].radio("Start from", ["blank", "an earlier session (same flume, next fish)"], key="lb_new_how")
-source = None
-if how != "blank":
+STARTS = ["blank", "an earlier session (same flume, next fish)", "a draft kept from the Set-up page (.json)"]
+how = cols[0].radio("Start from", STARTS, key="lb_new_how")
+source = draft = None
+if how == STARTS[1]:
     source = cols[1].selectbox("Copy from", options, format_func=lambda sid: labels.get(sid, sid), key="lb_copy_id",
                                index=None, placeholder="choose the earlier session")
-if cols[2].button("Start", key="lb_new", disabled=how != "blank" and source is None):
-    if how == "blank":
+elif how == STARTS[2]:
+    draft = cols[1].file_uploader("Draft file", type=["json"], key="lb_draft_upload")
+ready = how == STARTS[0] or (how == STARTS[1] and source is not None) or (how == STARTS[2] and draft is not None)
+if cols[2].button("Start", key="lb_new", disabled=not ready):
+    data = None
+    if how == STARTS[0]:
         data = ui_forms.blank_session(operator=common.user_name())
-    else:
+    elif how == STARTS[1]:
         data = ui_forms.next_fish_session(book.get_session(source).session.to_json_dict(), operator=common.user_name())
-    common.set_work(data, session_id=None, version=None)
-    st.switch_page(common.PAGE_FILES["setup"])
+    else:
+        try:
+            data = json.loads(draft.getvalue().decode("utf-8"))
+        except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+            st.error(f"The draft {draft.name!r} is not a JSON file swimlab wrote: {exc}")
+        if data is not None and not isinstance(data, dict):
+            st.error(f"The draft {draft.name!r} does not hold a session (expected a JSON object).")
+            data = None
+    if data is not None:
+        common.set_work(data, session_id=None, version=None)
+        st.switch_page(common.PAGE_FILES["setup"])
 
 # --- bundles --------------------------------------------------------------------------------
 st.subheader("Bundles")

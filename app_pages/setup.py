@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import json
+
 import streamlit as st
 
 from app_pages import common
@@ -142,6 +144,13 @@ with summary:
         )
         with st.expander("All problems", expanded=bool(loose)):
             st.dataframe(ui_forms.problems_table(locations), hide_index=True, width="stretch")
+        st.download_button(
+            "Keep a copy of this draft (JSON)", json.dumps(edit.data, indent=2, default=str),
+            file_name=f"swimlab-draft-{edit.data.get('session_id', 'new')}.json", mime="application/json",
+            key="su_draft_download", icon=":material/download:",
+            help="A half-filled session is not stored in the lab book. Start from this file on the Lab book page "
+                 "to carry on later.",
+        )
     else:
         st.success("Every value is valid." + (" There are unsaved edits." if common.is_unsaved() else ""))
     cols = st.columns([3, 1])

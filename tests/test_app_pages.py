@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import copy
+import json
 
 import pytest
 from browser_support import ROOT, logger_file, typical_session
@@ -233,6 +234,31 @@ def test_blank_session_is_kept_as_a_draft_in_the_browser(lab):
     assert "kept in this browser tab only" in _texts(at.error)
     at.button(key="su_save").click().run()
     assert lab.list_sessions().empty
+
+
+def test_half_filled_draft_is_kept_as_a_file_and_resumed(lab):
+    at = _app()
+    at.button(key="lb_new").click().run()
+    _edit(at, "fish", edited_rows={0: {"Fish id": "KB-09", "Mass [g]": 120.0}})
+    assert any(b.label.startswith("Keep a copy of this draft") for b in at.get("download_button"))
+    draft = json.dumps(at.session_state["app_work"]).encode()
+    fresh = _app()  # another day, another browser tab
+    fresh.radio(key="lb_new_how").set_value("a draft kept from the Set-up page (.json)").run()
+    fresh.get("file_uploader")[0].set_value(("draft.json", draft, "application/json")).run()
+    fresh.button(key="lb_new").click().run()
+    assert not fresh.exception, fresh.exception
+    assert fresh.title[0].value == "Set-up"
+    assert fresh.session_state["app_work"]["fish"][0]["mass_g"] == 120.0
+    assert lab.list_sessions().empty
+
+
+def test_a_draft_that_is_not_json_is_refused_in_words(lab):
+    at = _app()
+    at.radio(key="lb_new_how").set_value("a draft kept from the Set-up page (.json)").run()
+    at.get("file_uploader")[0].set_value(("notes.json", b"\xff\xfe not json", "application/json")).run()
+    at.button(key="lb_new").click().run()
+    assert not at.exception, at.exception
+    assert "The draft 'notes.json' is not a JSON file" in _texts(at.error)
 
 
 def test_protocol_type_changes_the_fields_asked_for(lab):
