@@ -222,7 +222,12 @@ def _analyse(args: argparse.Namespace) -> int:
             print(f"note: {note}")
     from swimlab.analysis import analyse  # the science stack is loaded only when needed
 
-    result = analyse(session, raw, lab_settings=lab_settings)
+    extra = {}
+    if session.protocol.type == "repeat_ucrit" and session.protocol.first_swim_session_id:
+        first = _first_swim(args, session.protocol.first_swim_session_id)
+        if first is not None:  # the first swim's analysis gives the recovery ratio
+            extra["first_swim"] = analyse(first[0], first[1], lab_settings=lab_settings)
+    result = analyse(session, raw, lab_settings=lab_settings, **extra)
     out = Path(args.out) if args.out else Path(f"analysis-{session.session_id}")
     files = {
         "steps.csv": result.steps.to_csv(index=False).encode("utf-8"),
@@ -234,6 +239,9 @@ def _analyse(args: argparse.Namespace) -> int:
             json.dumps(result.to_json_dict(), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
         ).encode("utf-8"),
     }
+    protocol = getattr(result, "protocol", None)
+    if protocol is not None and not protocol.results.empty:
+        files["protocol_results.csv"] = protocol.results.to_csv(index=False).encode("utf-8")
     from swimlab.io.bundle import _atomic_write_bytes
 
     out.mkdir(parents=True, exist_ok=True)
@@ -258,8 +266,34 @@ def _analyse(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _first_swim(args: argparse.Namespace, session_id: str):
+    """(session, raw files) of a repeat swim's first swim: from the lab book, or a bundle beside this one."""
+    if args.session:
+        with _open_book(args) as book:
+            try:
+                stored = book.get_session(session_id)
+            except SwimlabError:
+                return None
+            return stored.session, book.raw_files_of(stored.session)
+    from swimlab.io.bundle import SESSION_JSON, read_bundle
+
+    for sibling in sorted(Path(args.bundle).resolve().parent.iterdir()):
+        try:
+            doc = json.loads((sibling / SESSION_JSON).read_text(encoding="utf-8")) if sibling.is_dir() else {}
+        except (OSError, ValueError):
+            continue
+        if doc.get("session", {}).get("session_id") == session_id:
+            contents = read_bundle(sibling)
+            return contents.session, contents.raw_files
+    return None
+
+
 def _result_lines(result) -> list[str]:
-    """One line per derived value: quantity, value with unit, 95 % interval, method."""
+    """One line per derived value: quantity, value with unit, 95 % interval, method.
+
+    Protocol results (ramp, endurance, repeat swim, recovery, gait, kinematics) follow, each line
+    led by its protocol's name, then why any protocol result was not computed, then the flags.
+    """
     lines = []
     for row in result.results.itertuples(index=False):
         if row.value != row.value:  # NaN: nothing to print
@@ -267,6 +301,17 @@ def _result_lines(result) -> list[str]:
         interval = "" if row.ci_low != row.ci_low else f" (95 % CI {row.ci_low:.4g}–{row.ci_high:.4g})"
         note = f" [{row.note}]" if row.note else ""
         lines.append(f"  {row.fish_id}  {row.quantity:<13} {row.value:.4g} {row.unit}{interval} — {row.method}{note}")
+    protocol = getattr(result, "protocol", None)
+    if protocol is not None:
+        for row in protocol.results.itertuples(index=False):
+            if row.value != row.value:
+                lines.append(f"  [{row.part}] {row.fish_id}  {row.label} — not computed: {row.note}")
+                continue
+            interval = "" if row.ci_low != row.ci_low else f" (95 % CI {row.ci_low:.4g}–{row.ci_high:.4g})"
+            note = f" [{row.note}]" if row.note else ""
+            lines.append(f"  [{row.part}] {row.fish_id}  {row.label}: {row.value:.4g} {row.unit}{interval}"
+                         f" — {row.method}{note}")
+        lines.extend(f"  [{p.part}] not computed: {p}" for p in protocol.problems)
     for row in result.flags.itertuples(index=False):
         where = getattr(row, "where", "") or "session"
         lines.append(f"  flag {row.severity}: {row.code} at {where} — {getattr(row, 'message', '')}")

@@ -632,3 +632,20 @@ def test_protocol_problem_reads_as_a_sentence():
     assert str(problem).startswith("Repeat swim (recovery ratio): field 'first_swim': the recovery ratio needs")
     with pytest.raises(InputError):
         Session.from_json_dict({**second.to_json_dict(), "kinematics": [{"step": 1, "tail_beat_count": 3}]})
+
+
+def test_command_line_prints_protocol_results_with_their_names(capsys, tmp_path):
+    from swimlab import cli
+
+    # the second swim's bundle finds its first swim beside it, so the recovery ratio is computed
+    code = cli.main(["analyse", str(DEMO / "bw26-p02-second-swim"), "--out", str(tmp_path / "p02")])
+    out = capsys.readouterr().out
+    assert code == 0
+    ratio = _truth("bw26-p02-second-swim")["ucrit_set_m_s"] / _truth("bw26-p01-first-swim")["ucrit_set_m_s"]
+    assert f"[repeat] BW26-P01  Repeat-swim recovery ratio: {ratio:.4g} -" in out
+    code = cli.main(["analyse", str(DEMO / "bw26-r01-ramp"), "--out", str(tmp_path / "r01")])
+    out = capsys.readouterr().out
+    assert code == 0 and "[ramp] BW26-R01  Ramp Umax (set speed): 75 cm/s" in out
+    assert "  BW26-R01  ucrit" not in out  # a ramp prints no step Ucrit
+    exported = pd.read_csv(tmp_path / "r01" / "protocol_results.csv")
+    assert set(exported["protocol"]) == {"ramp"} and exported["label"].str.startswith("Ramp").all()
