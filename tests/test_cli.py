@@ -21,7 +21,7 @@ from swimlab.io.bundle import SESSION_JSON, read_bundle, schema_path, write_bund
 from swimlab.store import LabBook
 
 ROOT = Path(__file__).resolve().parent.parent
-COMMANDS = ["import-bundle", "export", "analyse", "list", "check-bundle", "schema"]
+COMMANDS = ["import-bundle", "export", "analyse", "report", "list", "check-bundle", "schema", "people"]
 
 
 @pytest.fixture
