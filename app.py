@@ -85,5 +85,5 @@ with st.sidebar:
             for line in demo_problems:
                 st.caption(line)
 
+common.footer(book)  # before the page: a page may st.stop() early
 page.run()
-common.footer(book)

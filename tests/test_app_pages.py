@@ -392,6 +392,7 @@ def test_pages_say_how_to_open_a_session(lab, page):
     at.switch_page(f"app_pages/{page}.py").run()
     assert not at.exception, at.exception
     assert "No session is open" in _texts(at.info)
+    assert "swimlab" in _texts(at.sidebar.caption)  # the footer shows even when a page stops early
 
 
 def test_care_page_shows_the_lab_limits(lab):
