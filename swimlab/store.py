@@ -1522,6 +1522,52 @@ class LabBook:
         ]
         return pd.DataFrame(records, columns=AUDIT_COLUMNS)
 
+    def sign_off(self, session_id: str) -> dict[str, Any]:
+        """Who entered, submitted and approved a session, and when: for exports and reports.
+
+        Returns
+        -------
+        dict
+            ``session_id``, ``status``, ``version``; ``entered_by``, ``entered_at``,
+            ``entered_via`` (the "created" entry); ``last_saved_by``, ``last_saved_at``;
+            ``submitted_by``, ``submitted_at`` (the last submission); ``approved_by``,
+            ``approved_at``, ``approved_via``, ``approved_version`` (``None`` unless the session
+            is approved now: a reopened session's earlier approval no longer holds). Times are
+            UTC, ISO 8601; ``via`` as in :meth:`audit_trail`.
+        """
+        stored = self.get_session(session_id)
+        record: dict[str, Any] = {
+            "session_id": session_id,
+            "status": stored.status,
+            "version": stored.version,
+            **{
+                f"{what}_{part}": None
+                for what in ("entered", "last_saved", "submitted", "approved")
+                for part in ("by", "at")
+            },
+            "entered_via": None,
+            "approved_via": None,
+            "approved_version": None,
+        }
+        for entry in self.audit_trail(session_id).itertuples(index=False):
+            if entry.action == "created":
+                record.update(entered_by=entry.who, entered_at=entry.at, entered_via=entry.via)
+                record.update(last_saved_by=entry.who, last_saved_at=entry.at)
+            elif entry.action == "saved":
+                record.update(last_saved_by=entry.who, last_saved_at=entry.at)
+            elif entry.action == "submitted":
+                record.update(submitted_by=entry.who, submitted_at=entry.at)
+            elif entry.action == "approved":
+                record.update(
+                    approved_by=entry.who,
+                    approved_at=entry.at,
+                    approved_via=entry.via,
+                    approved_version=int(entry.version),
+                )
+        if stored.status != "approved":
+            record.update(approved_by=None, approved_at=None, approved_via=None, approved_version=None)
+        return record
+
     # -- lab settings and remembered mappings -------------------------------------------------
     def _settings_row(self, conn: Connection):
         query = sa.select(lab_settings_table).where(lab_settings_table.c.id == 1)
@@ -2214,10 +2260,9 @@ class ActingLabBook:
             "get_lab_settings",
             "recall_mapping",
             "remembered_mappings",
-            "list_people",
-            "get_person",
             "has_people",
             "schema_version",
+            "sign_off",
         }
     )
 
@@ -2396,6 +2441,31 @@ class ActingLabBook:
     def unlock(self, username: str, *, reason: str = "") -> Account:
         """As :meth:`LabBook.unlock`: admins only."""
         return self._book._unlock(username, actor=self._actor(), reason=reason)
+
+    def set_email(self, username: str, email: str, *, reason: str = "") -> Account:
+        """As :meth:`LabBook.set_email`: admins only."""
+        return self._book._update_person(
+            username,
+            actor=self._actor(),
+            action="e-mail changed",
+            values={"email": _email(email)},
+            reason=_text(reason, "reason", required=False),
+        )
+
+    def list_people(self) -> pd.DataFrame:
+        """As :meth:`LabBook.list_people`: admins only (it shows e-mails and login times)."""
+        self.check(auth.MANAGE_PEOPLE)
+        return self._book.list_people()
+
+    def get_person(self, username: str) -> Account:
+        """One person's account: one's own, or anyone's for an admin."""
+        own = (
+            self._person.authenticated
+            and isinstance(username, str)
+            and username.strip().lower() == self._person.username
+        )
+        self.check(auth.READ if own else auth.MANAGE_PEOPLE)
+        return self._book.get_person(username)
 
     def change_own_password(self, current: str, new: str) -> Account:
         """Change this signed-in person's local password, proving the current one first.

@@ -432,3 +432,35 @@ def test_the_trusted_interface_still_takes_who(labbook):
         labbook.approve(session.session_id, who="ANA")
     assert labbook.approve(session.session_id, who="pi").status == "approved"
     assert labbook.audit_trail(session.session_id)["via"].tolist() == ["", "", ""]
+
+
+# --------------------------------------------------------------------------------------------
+# Who entered, who approved and when
+# --------------------------------------------------------------------------------------------
+
+
+def test_sign_off_names_who_entered_and_who_approved(labbook):
+    labbook.add_person("olga", display_name="Olga Berg", role="operator", password=PASSWORD, who="setup")
+    olga = labbook.as_person(labbook.login("olga", PASSWORD))
+    ben = _reviewer(labbook)
+    session = make_session(operator="Olga Berg")
+    olga.create_session(session)
+    olga.submit(session.session_id)
+    ben.approve(session.session_id)
+    record = ben.sign_off(session.session_id)
+    trail = labbook.audit_trail(session.session_id)
+    assert (record["entered_by"], record["entered_via"], record["entered_at"]) == ("olga", "password", trail.iloc[0]["at"])
+    assert (record["submitted_by"], record["approved_by"], record["approved_via"]) == ("olga", "ben", "password")
+    assert record["approved_at"] == trail.iloc[-1]["at"] and record["approved_version"] == 1
+    labbook.reopen(session.session_id, who="pi", reason="mass in the wrong unit")
+    reopened = labbook.sign_off(session.session_id)
+    assert reopened["status"] == "draft" and reopened["approved_by"] is None  # no longer approved
+
+
+def test_people_details_are_for_admins_and_oneself(labbook):
+    ben = _reviewer(labbook)
+    labbook.add_person("olga", display_name="Olga Berg", role="operator", email="olga@lab.example", who="setup")
+    assert ben.get_person("ben").role == "reviewer"
+    for call in (lambda: ben.list_people(), lambda: ben.get_person("olga")):
+        with pytest.raises(PermissionDeniedError, match="manage people"):
+            call()
