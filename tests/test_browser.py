@@ -1,7 +1,8 @@
 """A whole trial in a real browser: a student enters and analyses it, a reviewer approves it.
 
 Starts ``streamlit run app.py`` with its own lab book and drives Debian's Chromium with
-Playwright. Screenshots of each page go to docs/screenshots/. Skipped when Chromium is absent,
+Playwright. Screenshots of each page go to test-artifacts/screenshots/ (or the folder named by
+SWIMLAB_SCREENSHOT_DIR, e.g. docs/screenshots to refresh the README's pictures). Skipped when Chromium is absent,
 unless CI is "true" (then it fails).
 """
 
@@ -26,7 +27,7 @@ from browser_support import (
 
 pytestmark = pytest.mark.browser
 
-SHOTS = ROOT / "docs" / "screenshots"
+SHOTS = Path(os.environ.get("SWIMLAB_SCREENSHOT_DIR", ROOT / "test-artifacts" / "screenshots"))
 VIEWPORT = {"width": 1400, "height": 1000}
 
 
