@@ -197,8 +197,9 @@ def build(trial: DemoTrial) -> tuple[Session, dict[str, bytes], dict[str, Any]]:
             {"time_s": fatigue_s, "kind": "fatigue", "fish_id": trial.fish_id,
              "description": "Rested on the rear grid 10 s; did not resume after three taps; speed lowered"},
         ] + [
-            {"time_s": (cycle - 1) * cycle_s + FLUSH_S + WAIT_S + trial.measure_s / 2, "kind": "burst",
-             "fish_id": trial.fish_id, "description": "Bursts and struggling against the rear grid", "count": 6}
+            {"time_s": (cycle - 1) * cycle_s + FLUSH_S + WAIT_S + trial.measure_s / 2, "kind": "rear_grid_contact",
+             "fish_id": trial.fish_id, "description": "Struggled against the rear grid (not burst-and-coast swimming)",
+             "count": 6}
             for cycle in trial.struggling
         ] + [
             {"time_s": (cycle - 1) * cycle_s + FLUSH_S / 2, "kind": "adverse_event", "fish_id": trial.fish_id,
