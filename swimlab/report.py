@@ -149,6 +149,43 @@ REFERENCES = {
         "Laird, N. M. & Ware, J. H. (1982). Random-effects models for longitudinal data. "
         "Biometrics 38, 963–974."
     ),
+    "Farrell 2008": (
+        "Farrell, A. P. (2008). Comparisons of swimming performance in rainbow trout using constant acceleration "
+        "and critical swimming speed tests. Journal of Fish Biology 72, 693–710."
+    ),
+    "Kaplan & Meier 1958": (
+        "Kaplan, E. L. & Meier, P. (1958). Nonparametric estimation from incomplete observations. Journal of the "
+        "American Statistical Association 53, 457–481."
+    ),
+    "Tobin 1958": (
+        "Tobin, J. (1958). Estimation of relationships for limited dependent variables. Econometrica 26, 24–36."
+    ),
+    "Jain et al. 1998": (
+        "Jain, K. E., Birtwell, I. K. & Farrell, A. P. (1998). Repeat swimming performance of mature sockeye salmon "
+        "following a brief recovery period: a proposed measure of fish health and water quality. Canadian Journal "
+        "of Zoology 76, 1488–1496."
+    ),
+    "Lee et al. 2003": (
+        "Lee, C. G., Farrell, A. P., Lotto, A., Hinch, S. G. & Healey, M. C. (2003). Excess post-exercise oxygen "
+        "consumption in adult sockeye (Oncorhynchus nerka) and coho (O. kisutch) salmon following critical speed "
+        "swimming. Journal of Experimental Biology 206, 3253–3260."
+    ),
+    "Drucker & Jensen 1996": (
+        "Drucker, E. G. & Jensen, J. S. (1996). Pectoral fin locomotion in the striped surfperch. I. Kinematic "
+        "effects of swimming speed and body size. Journal of Experimental Biology 199, 2235–2242."
+    ),
+    "Bainbridge 1958": (
+        "Bainbridge, R. (1958). The speed of swimming of fish as related to size and to the frequency and amplitude "
+        "of the tail beat. Journal of Experimental Biology 35, 109–133."
+    ),
+    "Taylor et al. 2003": (
+        "Taylor, G. K., Nudds, R. L. & Thomas, A. L. R. (2003). Flying and swimming animals cruise at a Strouhal "
+        "number tuned for high power efficiency. Nature 425, 707–711."
+    ),
+    "Welch 1947": (
+        "Welch, B. L. (1947). The generalization of 'Student's' problem when several different population variances "
+        "are involved. Biometrika 34, 28–35."
+    ),
 }
 
 
@@ -334,6 +371,7 @@ class _Facts:
         self.phases = _frame(analysis.phases)
         self.flags = _frame(analysis.flags, checks.FLAG_COLUMNS)
         self.fish_table = _frame(analysis.fish)
+        self.protocol = getattr(analysis, "protocol", None)
 
     # --- per-fish lookups -----------------------------------------------------------------------
     def result(self, fish_id: str, quantity: str) -> dict[str, Any] | None:
@@ -526,6 +564,7 @@ def methods_paragraphs(session: Session, analysis: Any) -> list[tuple[str, str]]
         ("Oxygen uptake", _m_mo2(facts)),
         ("Water speed", _m_speed(facts)),
         ("Swimming protocol", _m_protocol(facts)),
+        ("Protocol analysis", _m_protocol_analysis(facts)),
         ("Speed–MO₂ curves, SMR, MMR and cost of transport", _m_curves(facts)),
         ("Software", _m_software(facts)),
     ]
@@ -826,7 +865,16 @@ def _m_protocol(f: _Facts) -> str:
         text = (f"A fixed-speed endurance test was used at {format_entered(p.set_speed_cm_s, 'cm/s')} with a time limit "
                 f"of {format_entered(p.time_limit_min, 'min')}; its result is a time to fatigue, not a Ucrit.")
     elif p.type == "recovery":
+        from swimlab.session import RECOVERY_BASELINES
+
         text = "MO₂ was followed during recovery after exercise (excess post-exercise oxygen consumption)."
+        text += (f" The exercise began at {_duration(p.start_s)} and exhaustion was reached at "
+                 f"{_duration(p.fatigue_time_s)} on the logger's clock." if p.fatigue_time_s is not None
+                 else f" The time of exhaustion was {NOT_RECORDED}.")
+        text += (f" EPOC was measured from the baseline “{p.recovery_baseline}”: {RECOVERY_BASELINES[p.recovery_baseline]}"
+                 + (f", entered as {format_entered(p.recovery_baseline_mg_kg_h, 'mg O2 kg-1 h-1')}"
+                    if p.recovery_baseline_mg_kg_h is not None else "") + "."
+                 if p.recovery_baseline else f" The baseline of the EPOC was {NOT_RECORDED}.")
     fc = p.fatigue_criterion
     if p.type != "recovery":
         crit = f"“{fc.description}”" if fc.description else NOT_RECORDED
@@ -849,6 +897,47 @@ def _m_protocol(f: _Facts) -> str:
                  "speed completed, U_ii the speed increment, t_i the time swum at the speed of fatigue and t_ii the step "
                  f"duration; {given}.")
     return text
+
+
+def _m_protocol_analysis(f: _Facts) -> str:
+    """Methods of the protocol parts that gave results in this session (empty when none did)."""
+    pr = f.protocol
+    if pr is None or (pr.results.empty and not pr.problems):
+        return ""
+    parts = set(pr.results["part"]) if not pr.results.empty else set()
+    text = []
+    if "ramp" in parts:
+        text.append("Ramp Umax = U₀ + a·t, with U₀ the speed at the ramp's start, a the ramp rate and t the time from "
+                    "the start to fatigue (constant acceleration; Farrell 2008), on set speed and after the solid-blocking "
+                    "correction; MO₂ of each measure phase on the ramp is given at the speed of its mid-time. A ramp Umax "
+                    "depends on the rate and is not a step-test Ucrit.")
+    if "endurance" in parts:
+        text.append("Endurance time is the time from the start of the set speed to fatigue; a fish still swimming when "
+                    "the time limit ended is kept as censored at the limit (a lower bound), never dropped. Across fish, "
+                    "the share still swimming is estimated by Kaplan–Meier (Kaplan & Meier 1958) per set speed, and log₁₀ "
+                    "endurance time is regressed on speed by a censored normal likelihood (Tobin 1958).")
+    if "repeat" in parts:
+        text.append("The recovery ratio is Ucrit₂ / Ucrit₁ of the same fish, both on blocking-corrected speed where both "
+                    "have it, else both on set speed (Jain, Birtwell & Farrell 1998).")
+    if "recovery" in parts:
+        text.append("EPOC is the oxygen taken up above the baseline after exhaustion, by trapezoids through the accepted "
+                    "phases over the recorded span, and as the area under a one- or two-phase exponential decay fitted "
+                    "by least squares (the lower AICc chosen; Hurvich & Tsai 1989), integrated from exhaustion to full "
+                    "recovery; recovery times to 50 % and 95 % come from the fitted decay. The total oxygen cost is the "
+                    "aerobic cost of the exercise plus EPOC (Lee et al. 2003).")
+    if "gait" in parts:
+        text.append("From the event log, the pectoral–caudal gait transition speed Up–c is the speed of the step holding "
+                    "the first gait change named so (Drucker & Jensen 1996), burst-and-coast onset the speed of the first "
+                    "step with bursts, and bursts per minute the bursts over the time swum in each step.")
+    if "kinematics" in parts:
+        text.append("Tail-beat frequency is the count over its counting window (or video frames over the frame rate); "
+                    "stride length is U/f and the Strouhal number f·A/U with A the peak-to-peak amplitude (Taylor, Nudds "
+                    "& Thomas 2003); the frequency–speed line is fitted by least squares and Bainbridge's (1958) relation "
+                    "U = ¼ L (3f − 4) is given for comparison.")
+    if pr.problems:
+        text.append("Some protocol results were not computed because an entry was missing or contradictory; they are "
+                    "listed with the field concerned in the protocol results.")
+    return " ".join(text)
 
 
 def _m_curves(f: _Facts) -> str:
@@ -1345,6 +1434,14 @@ def _tables(f: _Facts, checklist: pd.DataFrame, audit: pd.DataFrame | None) -> d
         "events": _events_table(f.session),
         "checklist": checklist.copy(),
     }
+    if f.protocol is not None and (not f.protocol.results.empty or f.protocol.problems):
+        out["protocol_results"] = _protocol_results_table(f)
+        for name, frame in f.protocol.tables.items():
+            out[f"protocol_{name}"] = frame.copy()
+        if f.protocol.problems:
+            out["protocol_problems"] = pd.DataFrame(
+                [{"part": x.part, "fish_id": x.fish_id, "field": x.field, "message": x.message} for x in f.protocol.problems],
+                columns=["part", "fish_id", "field", "message"])
     if audit is not None:
         out["audit"] = audit.copy()
     return out
@@ -1768,6 +1865,419 @@ def _jinja_env():
 
 
 # =================================================================================================
+# Protocol results (ramp, endurance, repeat swim, recovery, gait, kinematics)
+# =================================================================================================
+
+PROTOCOL_SOURCES = {
+    "ramp": "Farrell 2008",
+    "endurance": "Kaplan & Meier 1958; Tobin 1958",
+    "repeat": "Jain et al. 1998",
+    "recovery": "Lee et al. 2003",
+    "gait": "Drucker & Jensen 1996",
+    "kinematics": "Bainbridge 1958; Taylor et al. 2003",
+}
+"""References of each protocol part (keys of :data:`REFERENCES`)."""
+
+
+def _protocol_results_table(f: _Facts) -> pd.DataFrame:
+    pr = f.protocol
+    if pr is None or pr.results.empty:
+        from swimlab.protocol_analysis import PROTOCOL_RESULT_COLUMNS
+
+        return pd.DataFrame(columns=PROTOCOL_RESULT_COLUMNS)
+    return pr.results.copy()
+
+
+def _presult(f: _Facts, fish_id: str, quantity: str) -> dict[str, Any] | None:
+    pr = f.protocol
+    if pr is None or pr.results.empty:
+        return None
+    r = pr.results
+    hit = r[(r["fish_id"].astype(str) == str(fish_id)) & (r["quantity"] == quantity)]
+    if hit.empty or _is_missing(hit["value"].iloc[0]):
+        return None
+    return hit.iloc[0].to_dict()
+
+
+def _q(f: _Facts, fish_id: str, quantity: str, sig: int = 3) -> str | None:
+    r = _presult(f, fish_id, quantity)
+    return None if r is None else format_quantity(r["value"], r["unit"], sig)
+
+
+def _protocol_sentences(f: _Facts) -> dict[str, list[str]]:
+    """Result sentences of each protocol part, each naming its protocol."""
+    pr = f.protocol
+    out: dict[str, list[str]] = {}
+    if pr is None:
+        return out
+    p = f.session.protocol
+    for fid in f.fish_ids:
+        if fid in pr.ramp:
+            txt = f"Fish {fid}: the ramp Umax was {_q(f, fid, 'ramp_umax_set')} on set speed"
+            if _q(f, fid, "ramp_umax"):
+                txt += f" and {_q(f, fid, 'ramp_umax')} ({_q(f, fid, 'ramp_umax_bl')}) on blocking-corrected speed"
+            txt += (f", reached {_q(f, fid, 'ramp_time_to_fatigue')} after the ramp began at "
+                    f"{format_entered(p.ramp_rate_cm_s_per_min, 'cm/s')} per min. It is a ramp result and not comparable "
+                    "with a step-test Ucrit.")
+            out.setdefault("ramp", []).append(txt)
+        if fid in pr.endurance:
+            o = pr.endurance[fid]
+            speed = _q(f, fid, "endurance_speed")
+            at = format_entered(p.set_speed_cm_s, "cm/s") + (f" ({speed} corrected)" if speed else "")
+            txt = (f"Fish {fid} swam {_q(f, fid, 'endurance_time')} at {at} before fatigue." if o.fatigued else
+                   f"Fish {fid} was still swimming at {at} when the {format_entered(p.time_limit_min, 'min')} limit ended: "
+                   "its endurance time is censored (a lower bound).")
+            out.setdefault("endurance", []).append(txt)
+        if fid in pr.repeat:
+            rr = pr.repeat[fid]
+            out.setdefault("repeat", []).append(
+                f"Fish {fid}: the repeat-swim recovery ratio Ucrit₂ / Ucrit₁ was {format_number(rr.ratio)} "
+                f"(second swim {_q(f, fid, 'repeat_ucrit_second')}"
+                + (f" after {format_entered(p.rest_interval_min, 'min')} of rest" if p.rest_interval_min is not None else "")
+                + f"; first swim {_q(f, fid, 'repeat_ucrit_first')}, session {pr.first_swim_session_id}).")
+        if fid in pr.recovery:
+            res = pr.recovery[fid]
+            parts = []
+            if res.epoc_fit_mg_kg is not None:
+                parts.append(f"the EPOC was {_q(f, fid, 'recovery_epoc_fit')} from the fitted "
+                             f"{res.model.replace('_', '-')} decay and {_q(f, fid, 'recovery_epoc_trapezoid')} by "
+                             "trapezoids over the recorded span")
+                parts.append(f"recovery to 50 % took {_q(f, fid, 'recovery_t50', 2)} and to 95 % "
+                             f"{_q(f, fid, 'recovery_t95', 3)}")
+            else:
+                parts.append(f"the EPOC was {_q(f, fid, 'recovery_epoc_trapezoid')} by trapezoids over the recorded span "
+                             "(no decay could be fitted)")
+            base = _presult(f, fid, "recovery_baseline")
+            parts.append(f"the baseline was {format_quantity(base['value'], base['unit'])} ({base['method']})")
+            if _q(f, fid, "recovery_total_o2_cost"):
+                parts.append(f"the total oxygen cost (aerobic + EPOC) was {_q(f, fid, 'recovery_total_o2_cost')} and the "
+                             f"cost of transport including EPOC {_q(f, fid, 'recovery_cot_total')}")
+            out.setdefault("recovery", []).append(f"Fish {fid}: " + "; ".join(parts) + ".")
+        if fid in pr.gait:
+            parts = []
+            if _q(f, fid, "gait_upc"):
+                share = _presult(f, fid, "gait_upc_share_ucrit")
+                parts.append(f"the pectoral–caudal gait transition Up–c was at {_q(f, fid, 'gait_upc')}"
+                             + (f" ({format_quantity(share['value'] * 100, '%', 2)} of Ucrit)" if share else ""))
+            if _q(f, fid, "gait_burst_onset"):
+                parts.append(f"burst-and-coast swimming began at {_q(f, fid, 'gait_burst_onset')}")
+            if parts:
+                out.setdefault("gait", []).append(f"Fish {fid}: " + "; ".join(parts) + ".")
+        if fid in pr.kinematics:
+            line = pr.kinematics[fid].line
+            if line is not None:
+                out.setdefault("kinematics", []).append(
+                    f"Fish {fid}: tail-beat frequency rose with speed as f = {format_number(line.intercept_hz)} Hz + "
+                    f"{format_number(line.slope_hz_per_m_s * 0.01)} Hz per cm/s × U (R² {format_number(line.r2, 3)}, "
+                    f"{_n(line.n, 'record')}); the stride length it implies is "
+                    f"{_q(f, fid, 'kinematics_stride_length_line')}.")
+    return out
+
+
+_PART_TABLES: dict[str, tuple[str, list[tuple[str, Any, Any]], str]] = {
+    "ramp": ("ramp_phases", [
+        ("Fish", "fish_id", str), ("Cycle", "cycle", _int_fmt),
+        ("On the ramp\n[min]", lambda r: r["time_from_ramp_start_s"] / 60.0, _num()),
+        ("U set\n[cm/s]", "set_speed_cm_s", _num()), ("U corrected\n[cm/s]", "corrected_speed_cm_s", _num()),
+        ("MO₂", "mo2_mg_kg_h", _num()), ("Used", lambda r: "yes" if r["used"] else "no", str)],
+        "Ramp test: MO₂ [mg O₂ kg⁻¹ h⁻¹] of each measure phase on the ramp, at the speed of its mid-time."),
+    "endurance": ("endurance", [
+        ("Fish", "fish_id", str), ("U set\n[cm/s]", "set_speed_cm_s", _num()),
+        ("U corrected\n[cm/s]", "corrected_speed_cm_s", _num()), ("Time\n[min]", "time_min", _num()),
+        ("Outcome", lambda r: "fatigued" if r["fatigued"] else "censored (still swimming)", str),
+        ("Limit\n[min]", "time_limit_min", format_entered), ("Fatigue from", "fatigue_from", str)],
+        "Fixed-speed endurance: time at the set speed; a censored time is the limit, a lower bound."),
+    "recovery": ("recovery_curve", [
+        ("Fish", "fish_id", str), ("Cycle", "cycle", _int_fmt),
+        ("After exhaustion\n[min]", "time_after_exhaustion_min", _num()), ("MO₂", "mo2_mg_kg_h", _num()),
+        ("Baseline", "baseline_mg_kg_h", _num()), ("Excess", "excess_mg_kg_h", _num())],
+        "Post-exercise recovery (EPOC): MO₂ of each accepted phase after exhaustion, the baseline and the excess "
+        "over it [mg O₂ kg⁻¹ h⁻¹]."),
+    "gait": ("gait_steps", [
+        ("Fish", "fish_id", str), ("Step", "step", _int_fmt), ("U\n[cm/s]", "speed_cm_s", _num()),
+        ("Swum\n[min]", lambda r: r["swum_s"] / 60.0, _num()), ("Bursts", "bursts", _int_fmt),
+        ("Bursts\n[1/min]", "bursts_per_min", _num()), ("U / Ucrit", "share_of_ucrit", _num(2)),
+        ("U / Up–c", "share_of_upc", _num(2))],
+        "Gait from the event log: bursts per minute of swimming at each step (none counted after fatigue), and "
+        "blocking-corrected speed as shares of Ucrit and of the gait transition speed Up–c."),
+    "kinematics": ("kinematics", [
+        ("Fish", "fish_id", str), ("Step", "step", _int_fmt), ("U\n[cm/s]", "speed_cm_s", _num()),
+        ("Beats", "tail_beat_count", _int_fmt), ("Window\n[s]", "window_s", _num()), ("f\n[Hz]", "frequency_hz", _num()),
+        ("A\n[cm]", "amplitude_cm", _num()), ("Stride\n[BL]", "stride_length_bl", _num()), ("St", "strouhal", _num(2)),
+        ("Bainbridge U\n[cm/s]", "bainbridge_speed_cm_s", _num()),
+        ("f ≥ 5 Hz", lambda r: "yes" if r["bainbridge_in_range"] else "no", str)],
+        "Kinematics: tail-beat frequency f (count / window), peak-to-peak amplitude A, stride length U/f, Strouhal "
+        "number St = f·A/U (usually 0.2–0.4 when cruising efficiently), and the speed Bainbridge's (1958) relation "
+        "U = ¼ L (3f − 4) gives, which he established above 5 Hz."),
+}
+
+
+def _protocol_blocks(f: _Facts, figure_names: dict[str, list[str]], table_from: int) -> list[dict]:
+    """Blocks of the protocol section: per part a heading, sentences, its results, its table, its figures."""
+    from swimlab.protocol_analysis import PART_LABELS
+
+    pr = f.protocol
+    blocks: list[dict] = []
+    if pr is None:
+        return blocks
+    sentences = _protocol_sentences(f)
+    n = table_from
+    for part in PART_LABELS:
+        rows = pr.results[pr.results["part"] == part] if not pr.results.empty else pr.results
+        if rows.empty and part not in figure_names:
+            continue
+        blocks.append({"kind": "h3", "text": PART_LABELS[part]})
+        blocks += [{"kind": "p", "text": s} for s in sentences.get(part, [])]
+        if not rows.empty:
+            blocks.append(_display(
+                rows,
+                [("Fish", "fish_id", str), ("Quantity", "label", str), ("Value", "value", _num()),
+                 ("95 % interval", lambda r: format_range(r.get("ci_low"), r.get("ci_high")), str),
+                 ("Unit", lambda r: pretty_unit(str(r.get("unit", ""))), str), ("Method", "method", str),
+                 ("Note", "note", str)],
+                f"Table P{n}. {PART_LABELS[part]}: results per fish ({pr.label} session).",
+                nowrap=["Fish", "Unit", "95 % interval"]))
+            n += 1
+        spec = _PART_TABLES.get(part)
+        if spec is not None and spec[0] in pr.tables and not pr.tables[spec[0]].empty:
+            blocks.append(_display(pr.tables[spec[0]], spec[1], f"Table P{n}. {spec[2]}", nowrap=["Fish"]))
+            n += 1
+        blocks += [{"kind": "figure", "name": name} for name in figure_names.get(part, [])]
+    if pr.problems:
+        blocks.append(_box("warning", "Protocol results not computed",
+                           [f"{p}. Nothing was computed from it." for p in pr.problems]))
+    return blocks
+
+
+def _plot(name: str):
+    """A protocol figure builder: from swimlab.plots when it holds it, else the one below."""
+    from swimlab import plots
+
+    return getattr(plots, name, None) or globals()[name]
+
+
+def _protocol_figures(f: _Facts, number_from: int) -> tuple[list[ReportFigure], dict[str, list[str]]]:
+    pr = f.protocol
+    figs: list[ReportFigure] = []
+    names: dict[str, list[str]] = {}
+    if pr is None:
+        return figs, names
+    n = number_from
+
+    def add(part: str, name: str, caption: str, builder, height: int = 320) -> None:
+        nonlocal n
+        figs.append(_build(name, f"Figure {n}", caption, builder, height))
+        names.setdefault(part, []).append(name)
+        n += 1
+
+    for fid in f.fish_ids:
+        table = pr.tables.get("ramp_phases")
+        if fid in pr.ramp and table is not None and (table["fish_id"] == fid).any():
+            add("ramp", f"ramp_mo2_{fid}",
+                f"Ramp test, fish {fid}: MO₂ of each measure phase on the ramp against the blocking-corrected speed at its "
+                "mid-time; the dashed line marks the ramp Umax (not a step-test Ucrit).",
+                lambda fid=fid: _plot("ramp_mo2_figure")(pr, fid))
+        if fid in pr.recovery:
+            add("recovery", f"epoc_{fid}",
+                f"Post-exercise recovery, fish {fid}: MO₂ after exhaustion (points), the fitted decay (line) and the "
+                "baseline (dashed); the shaded area between them is the EPOC.",
+                lambda fid=fid: _plot("epoc_figure")(pr, fid))
+        if fid in pr.gait:
+            add("gait", f"gait_{fid}",
+                f"Gait, fish {fid}: bursts per minute at each step against blocking-corrected speed; the dashed line marks "
+                "the pectoral–caudal gait transition speed Up–c where one was recorded.",
+                lambda fid=fid: _plot("gait_figure")(pr, fid))
+        if fid in pr.kinematics and pr.kinematics[fid].line is not None:
+            add("kinematics", f"tail_beats_{fid}",
+                f"Kinematics, fish {fid}: tail-beat frequency against blocking-corrected speed with its least-squares line "
+                "(solid) and Bainbridge's (1958) relation for this fish's length (dotted).",
+                lambda fid=fid: _plot("frequency_speed_figure")(pr, fid))
+    return figs, names
+
+
+
+# Figure builders of the protocol parts (each figure's title names its protocol).
+
+PROTOCOL_COLOURS = ["#1f5fa8", "#c0392b", "#1e8449", "#7d3c98", "#b9770e", "#117a65"]
+"""Colours of the speeds or fish in the protocol figures (our own choice)."""
+
+
+def _own(table: pd.DataFrame | None, fish_id: str) -> pd.DataFrame:
+    if table is None or table.empty:
+        return pd.DataFrame()
+    return table[table["fish_id"].astype(str) == str(fish_id)]
+
+
+def ramp_mo2_figure(protocol: Any, fish_id: str) -> Any:
+    """Ramp test: MO2 of each measure phase along the ramp against speed, with the ramp Umax marked.
+
+    ``protocol`` is an analysis's :class:`swimlab.protocol_analysis.ProtocolResults`.
+    """
+    import plotly.graph_objects as go
+
+    own = _own(protocol.tables.get("ramp_phases"), fish_id)
+    if own.empty:
+        return None
+    speed = own["corrected_speed_cm_s"].fillna(own["set_speed_cm_s"])
+    used = own["used"].astype(bool)
+    fig = go.Figure()
+    for mask, name, symbol in ((used, "accepted phase", "circle"), (~used, "phase not used", "circle-open")):
+        if mask.any():
+            fig.add_trace(go.Scatter(x=speed[mask], y=own.loc[mask, "mo2_mg_kg_h"], mode="markers", name=name,
+                                     marker={"symbol": symbol, "size": 8, "color": PROTOCOL_COLOURS[0]},
+                                     hovertemplate="%{x:.1f} cm/s<br>MO2 %{y:.1f}<extra></extra>"))
+    summary = protocol.ramp.get(fish_id)
+    if summary is not None:
+        umax = summary.umax_corrected_m_s if summary.umax_corrected_m_s is not None else summary.on_set_speed.umax_m_s
+        fig.add_vline(x=umax * 100, line={"dash": "dash", "color": "#333"},
+                      annotation_text=f"ramp Umax {umax * 100:.1f} cm/s", annotation_position="top left")
+    fig.update_layout(title=f"Ramp test, fish {fish_id}: MO2 along the ramp",
+                      xaxis={"title": "Speed on the ramp, blocking-corrected [cm/s]"},
+                      yaxis={"title": "MO2 [mg O2/kg/h]", "rangemode": "tozero"}, template="plotly_white")
+    return fig
+
+
+def epoc_figure(protocol: Any, fish_id: str) -> Any:
+    """Post-exercise recovery: MO2 after exhaustion, the fitted decay, the baseline and the EPOC between."""
+    import plotly.graph_objects as go
+
+    own = _own(protocol.tables.get("recovery_curve"), fish_id)
+    res = protocol.recovery.get(fish_id)
+    if own.empty or res is None:
+        return None
+    t_min = own["time_after_exhaustion_min"].to_numpy(dtype=float)
+    top = float(t_min.max()) * 1.05
+    grid = np.linspace(0.0, top, 200)
+    base = res.baseline_mg_kg_h
+    fig = go.Figure()
+    fig.add_trace(go.Scatter(x=[0, top], y=[base, base], mode="lines", name=f"baseline ({res.baseline_method})",
+                             line={"dash": "dash", "color": "#555"}))
+    if res.fit is not None:
+        fig.add_trace(go.Scatter(x=grid, y=np.asarray(res.fit.mo2(grid * 60.0)), mode="lines",
+                                 name=f"fitted {res.fit.model.replace('_', '-')} decay", fill="tonexty",
+                                 fillcolor="rgba(31, 95, 168, 0.15)", line={"color": PROTOCOL_COLOURS[0], "width": 2}))
+    fig.add_trace(go.Scatter(x=t_min, y=own["mo2_mg_kg_h"], mode="markers", name="accepted phase",
+                             marker={"size": 7, "color": PROTOCOL_COLOURS[1]},
+                             hovertemplate="%{x:.0f} min<br>MO2 %{y:.1f}<extra></extra>"))
+    for t_s, label in ((res.t50_s, "50 %"), (res.t95_s, "95 %")):
+        if t_s is not None and t_s / 60.0 <= top:
+            fig.add_vline(x=t_s / 60.0, line={"dash": "dot", "color": "#999"}, annotation_text=label)
+    fig.update_layout(title=f"Post-exercise recovery (EPOC), fish {fish_id}",
+                      xaxis={"title": "Time after exhaustion [min]", "rangemode": "tozero"},
+                      yaxis={"title": "MO2 [mg O2/kg/h]", "rangemode": "tozero"}, template="plotly_white")
+    return fig
+
+
+def kaplan_meier_figure(summary: Any) -> Any:
+    """Endurance: Kaplan–Meier share still swimming against time, one step line per set speed.
+
+    ``summary`` is a :class:`swimlab.protocol_analysis.EnduranceSummary`; censored fish are
+    marked with a cross at their time.
+    """
+    import plotly.graph_objects as go
+
+    if summary is None or summary.kaplan_meier.empty:
+        return None
+    fig = go.Figure()
+    limit_min = summary.time_limit_s / 60.0
+    for i, (speed, part) in enumerate(summary.kaplan_meier.groupby("set_speed_cm_s", sort=True)):
+        colour = PROTOCOL_COLOURS[i % len(PROTOCOL_COLOURS)]
+        x = np.r_[0.0, part["time_min"].to_numpy(dtype=float)]
+        y = np.r_[1.0, part["share_swimming"].to_numpy(dtype=float)]
+        if x[-1] < limit_min:
+            x, y = np.r_[x, limit_min], np.r_[y, y[-1]]
+        fig.add_trace(go.Scatter(x=x, y=y, mode="lines", line_shape="hv", name=f"{speed:g} cm/s (set)",
+                                 line={"color": colour, "width": 2}, legendgroup=str(speed)))
+        cens = part[part["censored"] > 0]
+        if len(cens):
+            fig.add_trace(go.Scatter(x=cens["time_min"], y=cens["share_swimming"], mode="markers", showlegend=False,
+                                     marker={"symbol": "cross-thin", "size": 11, "line": {"width": 2, "color": colour}},
+                                     legendgroup=str(speed), hovertemplate="censored at %{x:.0f} min<extra></extra>"))
+    fig.update_layout(title="Endurance: share of fish still swimming (Kaplan–Meier)",
+                      xaxis={"title": "Time at the set speed [min]", "range": [0, limit_min * 1.03]},
+                      yaxis={"title": "Share still swimming [-]", "range": [-0.03, 1.05]}, template="plotly_white")
+    return fig
+
+
+def fatigue_curve_figure(summary: Any) -> Any:
+    """Endurance: time to fatigue against speed (log time), censored fish open, and the fitted curve."""
+    import plotly.graph_objects as go
+
+    if summary is None or summary.fish.empty:
+        return None
+    fish = summary.fish
+    use_cor = fish["corrected_speed_cm_s"].notna().all()
+    speed = fish["corrected_speed_cm_s"] if use_cor else fish["set_speed_cm_s"]
+    fig = go.Figure()
+    done = fish["fatigued"].astype(bool)
+    for mask, name, symbol in ((done, "fatigued", "circle"), (~done, "still swimming at the limit (censored)",
+                                                              "triangle-up-open")):
+        if mask.any():
+            fig.add_trace(go.Scatter(x=speed[mask], y=fish.loc[mask, "time_min"], mode="markers", name=name,
+                                     marker={"symbol": symbol, "size": 9, "color": PROTOCOL_COLOURS[0]},
+                                     text=fish.loc[mask, "fish_id"], hovertemplate="%{text}: %{y:.0f} min<extra></extra>"))
+    fit = summary.fatigue_curve
+    if fit is not None:
+        grid = np.linspace(float(speed.min()) * 0.95, float(speed.max()) * 1.05, 100)
+        fig.add_trace(go.Scatter(x=grid, y=np.asarray(fit.median_time_s(grid / 100.0)) / 60.0, mode="lines",
+                                 name="median endurance (censored fit)", line={"color": PROTOCOL_COLOURS[1]}))
+    x_ends = [float(speed.min()) * 0.95, float(speed.max()) * 1.05]
+    fig.add_trace(go.Scatter(x=x_ends, y=[summary.time_limit_s / 60.0] * 2, mode="lines", name="time limit",
+                             line={"dash": "dash", "color": "#555"}))
+    fig.update_layout(title="Endurance: fatigue curve",
+                      xaxis={"title": "Speed, blocking-corrected [cm/s]" if use_cor else "Set speed [cm/s]"},
+                      yaxis={"title": "Time to fatigue [min]", "type": "log"}, template="plotly_white")
+    return fig
+
+
+def gait_figure(protocol: Any, fish_id: str) -> Any:
+    """Gait: bursts per minute at each step against speed, with the gait transition speed Up–c marked."""
+    import plotly.graph_objects as go
+
+    own = _own(protocol.tables.get("gait_steps"), fish_id)
+    if own.empty:
+        return None
+    fig = go.Figure(go.Bar(x=own["speed_cm_s"], y=own["bursts_per_min"].fillna(0.0), name="bursts per minute",
+                           marker={"color": PROTOCOL_COLOURS[2]}, width=1.5,
+                           hovertemplate="step %{customdata}: %{y:.2f} /min<extra></extra>", customdata=own["step"]))
+    g = protocol.gait.get(fish_id)
+    if g is not None and g.upc_m_s is not None:
+        fig.add_vline(x=g.upc_m_s * 100, line={"dash": "dash", "color": "#333"},
+                      annotation_text=f"Up–c {g.upc_m_s * 100:.1f} cm/s", annotation_position="top left")
+    fig.update_layout(title=f"Gait, fish {fish_id}: bursts per minute at each step",
+                      xaxis={"title": "Speed, blocking-corrected [cm/s]"},
+                      yaxis={"title": "Bursts per minute [1/min]", "rangemode": "tozero"}, template="plotly_white")
+    return fig
+
+
+def frequency_speed_figure(protocol: Any, fish_id: str) -> Any:
+    """Kinematics: tail-beat frequency against speed, the fish's line and Bainbridge's (1958) relation."""
+    import plotly.graph_objects as go
+
+    own = _own(protocol.tables.get("kinematics"), fish_id)
+    res = protocol.kinematics.get(fish_id)
+    if own.empty or res is None:
+        return None
+    fig = go.Figure(go.Scatter(x=own["speed_cm_s"], y=own["frequency_hz"], mode="markers", name="tail-beat record",
+                               marker={"size": 8, "color": PROTOCOL_COLOURS[0]},
+                               hovertemplate="%{x:.1f} cm/s: %{y:.2f} Hz<extra></extra>"))
+    grid = np.linspace(0.0, float(own["speed_cm_s"].max()) * 1.1, 50)
+    if res.line is not None:  # drawn over the speeds with tail beats only
+        beating = own[own["frequency_hz"] > 0]["speed_cm_s"]
+        span = np.linspace(float(beating.min()), float(beating.max()), 20)
+        fig.add_trace(go.Scatter(x=span, y=np.asarray(res.line.frequency_hz(span / 100.0)), mode="lines",
+                                 name="frequency–speed line", line={"color": PROTOCOL_COLOURS[0]}))
+    # Bainbridge (1958): U = ¼ L (3f − 4), i.e. f = (4 U / L + 4) / 3
+    length_cm = res.body_length_m * 100.0
+    fig.add_trace(go.Scatter(x=grid, y=(4.0 * grid / length_cm + 4.0) / 3.0, mode="lines",
+                             name="Bainbridge (1958), for comparison", line={"dash": "dot", "color": "#777"}))
+    fig.update_layout(title=f"Kinematics, fish {fish_id}: tail-beat frequency against speed",
+                      xaxis={"title": "Speed, blocking-corrected [cm/s]", "rangemode": "tozero"},
+                      yaxis={"title": "Tail-beat frequency [Hz]", "rangemode": "tozero"}, template="plotly_white")
+    return fig
+
+
+# =================================================================================================
 # Session report
 # =================================================================================================
 
@@ -1869,6 +2379,10 @@ def session_report(session: Session, analysis: Any, *, status: Any = None, audit
     sentences = _result_sentences(f)
     if sentences:
         results_blocks += [{"kind": "p", "text": s} for s in sentences]
+    elif f.protocol is not None and not f.protocol.results.empty:
+        results_blocks.append({"kind": "p", "text": (
+            f"This {PROTOCOL_LABELS.get(session.protocol.type, session.protocol.type)} session has no step-test "
+            "result; its results are given under its protocol's name in the protocol results below.")})
     else:
         results_blocks.append({"kind": "p", "text": "No derived result is available for this session (see flags)."})
     results_blocks.append(_display(
@@ -1913,6 +2427,15 @@ def session_report(session: Session, analysis: Any, *, status: Any = None, audit
             note=_join(sorted(set(fits_table["ci_method"].dropna().astype(str))))))
     sections.append({"key": "results", "heading": "Results", "blocks": results_blocks})
     sections.append({"key": "figures", "heading": "Figures", "blocks": [{"kind": "figure", "name": fig.name} for fig in figures]})
+    protocol_figures, protocol_figure_names = _protocol_figures(f, len(figures) + 1)
+    protocol_blocks = _protocol_blocks(f, protocol_figure_names, 1)
+    if protocol_blocks:
+        figures += protocol_figures
+        from swimlab.protocol_analysis import PART_LABELS
+
+        shown = [PART_LABELS[part] for part in PART_LABELS if part in f.protocol.parts]
+        heading = "Protocol results" + (f": {_join(shown)}" if shown else "")
+        sections.append({"key": "protocol", "heading": heading, "blocks": protocol_blocks})
 
     flag_blocks: list[dict] = []
     if f.flags.empty:
@@ -1997,6 +2520,25 @@ _STUDY_QUANTITIES = {
 }
 
 
+_STUDY_PROTOCOL_QUANTITIES = {
+    "ramp_umax": ("ramp_umax_cm_s", "cm/s"),
+    "ramp_umax_set": ("ramp_umax_set_cm_s", "cm/s"),
+    "endurance_time": ("endurance_time_min", "min"),
+    "endurance_fatigued": ("endurance_fatigued", "-"),
+    "repeat_recovery_ratio": ("repeat_recovery_ratio", "-"),
+    "recovery_epoc_fit": ("recovery_epoc_fit_mg_kg", "mg O2 kg-1"),
+    "recovery_epoc_trapezoid": ("recovery_epoc_trapezoid_mg_kg", "mg O2 kg-1"),
+    "recovery_t50": ("recovery_t50_min", "min"),
+    "gait_upc": ("gait_upc_cm_s", "cm/s"),
+}
+"""Protocol results in the study table: each column is named after its protocol."""
+
+SPREAD_PROTOCOLS = ("step_ucrit",)
+"""Protocols whose fish enter the spread between fish and the group curve: first step tests only
+(a repeat swim's fish is already there from its first swim; a recovery's exercise steps are not a
+step test)."""
+
+
 def _check_items(items: Any) -> list[tuple[Session, Any]]:
     if isinstance(items, tuple) and len(items) == 2 and isinstance(items[0], Session):
         items = [items]
@@ -2054,6 +2596,9 @@ def study_table(items: Sequence[tuple[Session, Any]]) -> pd.DataFrame:
                 row[f"fit_{p}"] = float(fit.params[p]) if fit is not None and p in fit.params else np.nan
             row["fit_poorly_constrained"] = f.chosen_fit_poor(fid)
             row["uopt_outside_tested"] = _uopt_outside(f, fid) if f.result(fid, "uopt") is not None else False
+            for quantity, (column, unit) in _STUDY_PROTOCOL_QUANTITIES.items():
+                r = _presult(f, fid, quantity)
+                row[column] = np.nan if r is None or str(r.get("unit")) != unit else float(r["value"])
             own = f.fish_flags(fid)
             session_level = f.flags[~f.flags["where"].fillna("").astype(str).str.startswith("fish ")] if not f.flags.empty else f.flags
             both = pd.concat([own, session_level]) if len(own) or len(session_level) else own
@@ -2066,6 +2611,8 @@ def study_table(items: Sequence[tuple[Session, Any]]) -> pd.DataFrame:
 def _spread_table(table: pd.DataFrame) -> pd.DataFrame:
     """Spread between fish of each derived value, per species (sample SD, ddof = 1)."""
     rows = []
+    if len(table) and "protocol" in table:
+        table = table[table["protocol"].isin(SPREAD_PROTOCOLS)]
     species = table["species"].replace("", "species not recorded") if len(table) else pd.Series(dtype=str)
     for sp, part in table.groupby(species, sort=True):
         for quantity, (column, unit) in _STUDY_QUANTITIES.items():
@@ -2090,6 +2637,8 @@ def group_curve_data(items: Sequence[tuple[Session, Any]]) -> pd.DataFrame:
     """
     parts = []
     for session, analysis in _check_items(items):
+        if session.protocol.type not in SPREAD_PROTOCOLS:
+            continue
         f = _Facts(session, analysis)
         m, s = f.measure, f.steps
         if m.empty or s.empty or "step" not in m:
@@ -2214,7 +2763,7 @@ def study_report(items: Sequence[tuple[Session, Any]], *, title: str | None = No
 
     results_blocks = [_display(
         table,
-        [("Fish", "fish_id", str), ("Mass\n[g]", "mass_g", format_entered),
+        [("Fish", "fish_id", str), ("Protocol", "protocol", str), ("Mass\n[g]", "mass_g", format_entered),
          ("T\n[°C]", "temperature_c", format_entered),
          ("Ucrit\n[cm/s]", "ucrit_cm_s", _num()), ("Ucrit\n[BL/s]", "ucrit_bl_s", _num()),
          ("SMR", "smr_mg_kg_h", _num()), ("MMR", "mmr_mg_kg_h", _num()),
@@ -2229,7 +2778,8 @@ def study_report(items: Sequence[tuple[Session, Any]], *, title: str | None = No
             spread, [("Species", "species", str), ("Quantity", lambda r: QUANTITY_LABELS.get(r["quantity"], r["quantity"]), str),
                      ("Unit", lambda r: pretty_unit(r["unit"]), str), ("n", "n_fish", _int_fmt), ("Mean", "mean", _num()),
                      ("SD", "sd", _num(2)), ("CV", "cv", _num(2)), ("Min", "min", _num()), ("Max", "max", _num())],
-            "Table 3. Spread between fish of one species (SD with n − 1; CV = SD / mean).", nowrap=["Unit"]))
+            "Table 3. Spread between fish of one species (SD with n − 1; CV = SD / mean), from first step tests "
+            "only, so that a fish swum twice counts once.", nowrap=["Unit"]))
     n_fig = 0
     for species, curve, error in curves:
         results_blocks.append({"kind": "h3", "text": f"Group curve: {species}"})
@@ -2248,6 +2798,9 @@ def study_report(items: Sequence[tuple[Session, Any]], *, title: str | None = No
             txt += " The optimiser did not report convergence; the curve is doubtful."
         results_blocks.append({"kind": "p", "text": txt})
         results_blocks.append({"kind": "figure", "name": f"group_curve_{n_fig}"})
+
+    protocol_blocks, protocol_tables, protocol_figures = _study_protocol_blocks(items, len(figures) + 1)
+    figures += protocol_figures
 
     flag_blocks = ([_display(flag_counts, [("Severity", "severity", str), ("Rule", "code", str),
                                            ("Sessions", "sessions", _int_fmt), ("Flags", "flags", _int_fmt)],
@@ -2269,12 +2822,15 @@ def study_report(items: Sequence[tuple[Session, Any]], *, title: str | None = No
         {"key": "care", "heading": "Animal care", "blocks": [_box("care", "Animal care", care)]},
         {"key": "summary", "heading": "Study", "blocks": blocks_summary},
         {"key": "results", "heading": "Results across fish", "blocks": results_blocks},
+        *([{"key": "protocols", "heading": "Protocols across sessions", "blocks": protocol_blocks}]
+          if protocol_blocks else []),
         {"key": "flags", "heading": "Flags", "blocks": flag_blocks},
         {"key": "checklist", "heading": "Reporting checklist over sessions", "blocks": _checklist_blocks(counted, counts=True)},
         {"key": "references", "heading": "References",
          "blocks": [_list(REFERENCES.values(), "refs")]},
     ]
-    tables = {"study": table, "spread": spread, "group_curve_data": data, "flags": flags, "checklist": counted}
+    tables = {"study": table, "spread": spread, "group_curve_data": data, "flags": flags, "checklist": counted,
+              **protocol_tables}
     fitted = [(sp, c) for sp, c, _ in curves if c is not None]
     tables["group_curve"] = pd.DataFrame([{
         "species": sp, "a_mg_kg_h": c.a, "a_ci_low": c.a_ci95[0], "a_ci_high": c.a_ci95[1],
@@ -2289,6 +2845,113 @@ def study_report(items: Sequence[tuple[Session, Any]], *, title: str | None = No
     meta = [("Sessions", str(len(items))), ("Fish", str(len(table)))]
     return Report(kind="study", title=title, meta=meta, sections=sections, figures={x.name: x for x in figures},
                   table_data=tables, checklist=counted)
+
+
+def _study_protocol_blocks(items: Sequence[tuple[Session, Any]], figure_from: int
+                           ) -> tuple[list[dict], dict[str, pd.DataFrame], list[ReportFigure]]:
+    """The endurance survival summary and the repeat-swim pairs across sessions."""
+    from swimlab.protocol_analysis import endurance_summary, repeat_pairs
+
+    blocks: list[dict] = []
+    tables: dict[str, pd.DataFrame] = {}
+    figures: list[ReportFigure] = []
+    es = endurance_summary(items)
+    if es is not None:
+        fish = es.fish
+        n_cens = int((~fish["fatigued"].astype(bool)).sum())
+        blocks.append({"kind": "h3", "text": "Fixed-speed endurance: survival across fish"})
+        txt = (f"{_n(len(fish), 'fish', 'fish')} swam at {_n(fish['set_speed_cm_s'].nunique(), 'set speed')} "
+               f"({_join([format_entered(u, 'cm/s') for u in sorted(fish['set_speed_cm_s'].unique())])}) with a time "
+               f"limit of {format_entered(es.time_limit_s / 60.0, 'min')}; {_n(n_cens, 'fish', 'fish')} "
+               f"{'was' if n_cens == 1 else 'were'} still swimming at the limit and "
+               f"{'is' if n_cens == 1 else 'are'} kept as censored (Kaplan & Meier 1958). ")
+        mss = es.max_sustained
+        txt += (f"The maximum sustained speed for this limit, the highest set speed at which no fish fatigued, was "
+                f"{format_quantity(mss.speed_m_s * 100, 'cm/s')}." if mss.speed_m_s is not None else
+                "Some fish fatigued at the slowest speed tested: no maximum sustained speed can be given for this limit.")
+        fit = es.fatigue_curve
+        if fit is not None:
+            txt += (f" The censored fatigue curve (Tobin 1958) was log₁₀ T [s] = {format_number(fit.intercept)} "
+                    f"{MINUS if fit.slope < 0 else '+'} {format_number(abs(fit.slope) * 0.01)} × U [cm/s] "
+                    f"(SE of the slope {format_number((fit.slope_se or float('nan')) * 0.01, 2)}; residual SD "
+                    f"{format_number(fit.sigma, 2)} in log₁₀ T).")
+            half = es.half_fatigued
+            if half is not None and half.speed_m_s is not None:
+                txt += (f" Half the fish fatigue within the limit at {format_quantity(half.speed_m_s * 100, 'cm/s')}"
+                        + (f" (SE {format_quantity(half.se_m_s * 100, 'cm/s', 2)})" if half.se_m_s is not None else "")
+                        + ("" if half.within_tested else ", outside the tested speeds (an extrapolation)") + ".")
+        blocks.append({"kind": "p", "text": txt})
+        if es.problems:
+            blocks.append(_box("warning", "Endurance summary", [_sentence(x) + "." for x in es.problems]))
+        blocks.append(_display(
+            es.kaplan_meier,
+            [("U set\n[cm/s]", "set_speed_cm_s", format_entered), ("Time\n[min]", "time_min", _num()),
+             ("At risk", "at_risk", _int_fmt), ("Fatigued", "fatigued", _int_fmt), ("Censored", "censored", _int_fmt),
+             ("Still swimming", "share_swimming", _num(2)), ("SE", "share_swimming_se", _num(2))],
+            "Endurance: Kaplan–Meier share of fish still swimming at each set speed, with Greenwood's standard error."))
+        blocks.append(_display(
+            fish, [("Session", "session_id", str), ("Fish", "fish_id", str), ("U set\n[cm/s]", "set_speed_cm_s", format_entered),
+                   ("U corrected\n[cm/s]", "corrected_speed_cm_s", _num()), ("Time\n[min]", "time_min", _num()),
+                   ("Outcome", lambda r: "fatigued" if r["fatigued"] else "censored", str)],
+            "Endurance: every fish, its time at the set speed and its outcome.", nowrap=["Fish"]))
+        n = figure_from
+        for name, builder, caption in (
+                ("endurance_km", "kaplan_meier_figure",
+                 "Endurance: share of fish still swimming against time at each set speed (Kaplan–Meier); crosses mark "
+                 "fish still swimming at the limit."),
+                ("endurance_fatigue_curve", "fatigue_curve_figure",
+                 "Endurance: time to fatigue against speed on a log scale, censored fish as open triangles at the limit, "
+                 "and the median endurance of the censored fit.")):
+            if builder == "fatigue_curve_figure" and fit is None:
+                continue
+            figures.append(_build(name, f"Figure {n}", caption, lambda b=builder: _plot(b)(es), 330))
+            blocks.append({"kind": "figure", "name": name})
+            n += 1
+        tables["endurance_fish"] = fish.copy()
+        tables["endurance_kaplan_meier"] = es.kaplan_meier.copy()
+        if fit is not None:
+            tables["endurance_fatigue_curve"] = pd.DataFrame([{
+                "intercept_log10_s": fit.intercept, "slope_log10_s_per_m_s": fit.slope, "sigma_log10_s": fit.sigma,
+                "intercept_se": fit.intercept_se, "slope_se": fit.slope_se, "sigma_se": fit.sigma_se,
+                "n_fish": fit.n_fish, "n_fatigued": fit.n_fatigued, "n_censored": fit.n_censored,
+                "converged": fit.converged, "method": fit.method, "time_limit_s": es.time_limit_s,
+                "max_sustained_speed_m_s": mss.speed_m_s,
+                "speed_half_fatigued_m_s": None if es.half_fatigued is None else es.half_fatigued.speed_m_s,
+                "speed_half_fatigued_se_m_s": None if es.half_fatigued is None else es.half_fatigued.se_m_s}])
+    rp = repeat_pairs(items)
+    if rp is not None:
+        blocks.append({"kind": "h3", "text": "Repeat swims: recovery ratio across pairs"})
+        if rp.pairs.empty:
+            blocks.append({"kind": "p", "text": "No repeat swim could be paired with its first swim."})
+        else:
+            blocks.append({"kind": "p", "text": (
+                f"{_n(len(rp.pairs), 'fish', 'fish')} {'was' if len(rp.pairs) == 1 else 'were'} swum twice; the recovery "
+                "ratio Ucrit₂ / Ucrit₁ (Jain, Birtwell & Farrell 1998) is given per pair and summarised per treatment "
+                "with a 95 % t interval and a t test of ratio = 1; two treatments are compared by Welch's (1947) test.")})
+            blocks.append(_display(
+                rp.pairs, [("Fish", "fish_id", str), ("Treatment", "treatment", str), ("First swim", "first_session_id", str),
+                           ("Second swim", "second_session_id", str), ("Rest\n[min]", "rest_interval_min", format_entered),
+                           ("Ucrit₁\n[cm/s]", "ucrit_first_cm_s", _num()), ("Ucrit₂\n[cm/s]", "ucrit_second_cm_s", _num()),
+                           ("Recovery ratio", "recovery_ratio", _num())],
+                "Repeat swims: Ucrit of each swim (both on the speed basis named in the CSV export) and their ratio.",
+                nowrap=["Fish"]))
+            blocks.append(_display(
+                rp.groups, [("Treatment", "treatment", str), ("Pairs", "n_pairs", _int_fmt),
+                            ("Mean ratio", "mean_ratio", _num()), ("SD", "sd", _num(2)), ("SE", "se", _num(2)),
+                            ("95 % interval", lambda r: format_range(r["ci_low"], r["ci_high"]), str),
+                            ("p (ratio = 1)", "p_ratio_equals_1", _num(2))],
+                "Repeat swims: recovery ratio per treatment (one pair gives no spread)."))
+            c = rp.comparison
+            if c is not None:
+                blocks.append({"kind": "p", "text": (
+                    f"The mean recovery ratio of {c['groups'][0]} minus that of {c['groups'][1]} was "
+                    f"{format_number(c['difference'])} (Welch's t = {format_number(c['t'])}, df = {format_number(c['df'])}, "
+                    f"p = {format_number(c['p'], 2)}).")})
+        if rp.problems:
+            blocks.append(_box("warning", "Repeat swims not paired", [_sentence(x) + "." for x in rp.problems]))
+        tables["repeat_pairs"] = rp.pairs.copy()
+        tables["repeat_groups"] = rp.groups.copy()
+    return blocks, tables, figures
 
 
 # =================================================================================================
