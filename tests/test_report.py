@@ -635,3 +635,98 @@ def test_the_offline_check_finds_external_references():
     assert external_urls('<div style="background: url(https://example.org/b.png)"></div>')
     assert external_urls('<svg xmlns="http://www.w3.org/2000/svg"><use xlink:href="#clip1"/></svg>') == []
     assert external_urls('<img src="data:image/svg+xml;base64,AAAA">') == []
+
+
+# --------------------------------------------------------------------------------------------
+# Protocols beyond the step test (demo bundles of each protocol)
+# --------------------------------------------------------------------------------------------
+
+
+@pytest.fixture(scope="module")
+def protocol_demos():
+    from swimlab.io.bundle import read_bundle
+
+    out = {}
+    for name in ("bw26-r01-ramp", "bw26-e01-endurance", "bw26-e04-endurance", "bw26-e05-endurance",
+                 "bw26-p01-first-swim", "bw26-p02-second-swim", "bw26-v01-recovery-epoc", "bw26-w01-gait-kinematics"):
+        contents = read_bundle(DEMO / name)
+        first = contents.session.protocol.first_swim_session_id
+        first_analysis = next((a for s, a in out.values() if s.session_id == first), None) if first else None
+        out[name] = (contents.session, analyse(contents.session, contents.raw_files, n_boot=50,
+                                               first_swim=first_analysis))
+    return out
+
+
+def test_ramp_report_names_its_protocol_and_shows_no_ucrit(protocol_demos):
+    session, analysis = protocol_demos["bw26-r01-ramp"]
+    rep = report.session_report(session, analysis)
+    section = next(s for s in rep.sections if s["key"] == "protocol")
+    assert section["heading"] == "Protocol results: Ramp test (Umax)"
+    tables = [b for b in section["blocks"] if b["kind"] == "table"]
+    assert tables[0]["caption"].startswith("Table P1. Ramp test (Umax)")
+    quantities = [row[1] for row in tables[0]["rows"]]
+    assert quantities and all(q.startswith("Ramp") for q in quantities)
+    results = next(s for s in rep.sections if s["key"] == "results")
+    step_rows = [b for b in results["blocks"] if b["kind"] == "table" and b["caption"].startswith("Table 3")]
+    assert all("Ucrit" not in row[1] for b in step_rows for row in b["rows"])  # no step Ucrit for a ramp
+    exported = rep.tables()["protocol_results"]
+    assert set(exported["protocol"]) == {"ramp"}
+    assert exported.set_index("quantity").loc["ramp_umax_set", "value"] == pytest.approx(75.0)
+    html = text(rep.html(figures=False))
+    assert "the ramp Umax was 75.0 cm/s on set speed" in html and "Farrell, A. P. (2008)" in html
+    assert "not comparable with a step-test Ucrit" in html
+
+
+def test_recovery_report_states_its_baseline(protocol_demos):
+    session, analysis = protocol_demos["bw26-v01-recovery-epoc"]
+    methods = text(dict(report.methods_paragraphs(session, analysis))["Swimming protocol"])
+    assert "EPOC was measured from the baseline “pre_exercise”: routine MO2 of the measure phases before the " \
+           "exercise began" in methods
+    rep = report.session_report(session, analysis)
+    curve = rep.tables()["protocol_recovery_curve"]
+    assert len(curve) == analysis.protocol.recovery["BW26-V01"].n_phases
+    figure = rep.figures["epoc_BW26-V01"]
+    assert figure.error is None
+    # protocol figures are numbered on from the session's own figures
+    assert [f.label for f in rep.figures.values()] == [f"Figure {i}" for i in range(1, len(rep.figures) + 1)]
+
+
+def test_protocol_problem_is_reported_with_its_field(protocol_demos):
+    import html as html_lib
+
+    from swimlab.io.bundle import read_bundle
+
+    second, _ = protocol_demos["bw26-p02-second-swim"]
+    alone = analyse(second, read_bundle(DEMO / "bw26-p02-second-swim").raw_files, n_boot=20)  # no first swim given
+    rep = report.session_report(second, alone)
+    page = html_lib.unescape(text(rep.html(figures=False)))
+    assert "Protocol results not computed" in page
+    assert "field 'first_swim': the recovery ratio needs the analysis of the first swim" in page
+    assert "PROTOCOL_RESULT_NOT_COMPUTED" in page
+    assert set(rep.tables()["protocol_problems"]["field"]) == {"first_swim"}
+
+
+def test_study_report_endurance_survival_and_repeat_pairs(protocol_demos):
+    from swimlab.protocol_analysis import endurance_summary, repeat_pairs
+
+    items = list(protocol_demos.values())
+    rep = report.study_report(items)
+    tables = rep.tables()
+    summary = endurance_summary(items)
+    pd.testing.assert_frame_equal(tables["endurance_kaplan_meier"], summary.kaplan_meier)
+    assert tables["endurance_fish"]["fatigued"].tolist() == [False, True, True]
+    pairs = tables["repeat_pairs"]
+    assert pairs["recovery_ratio"].tolist() == pytest.approx(list(repeat_pairs(items).pairs["recovery_ratio"]))
+    section = next(s for s in rep.sections if s["key"] == "protocols")
+    headings = [b["text"] for b in section["blocks"] if b["kind"] == "h3"]
+    assert headings == ["Fixed-speed endurance: survival across fish", "Repeat swims: recovery ratio across pairs"]
+    # the study table names protocol results by their protocol; a ramp has no Ucrit there
+    study = tables["study"].set_index("session_id")
+    assert np.isnan(study.loc["bw26-r01-ramp", "ucrit_cm_s"])
+    assert study.loc["bw26-r01-ramp", "ramp_umax_set_cm_s"] == pytest.approx(75.0)
+    assert study.loc["bw26-p02-second-swim", "repeat_recovery_ratio"] == pytest.approx(pairs["recovery_ratio"].iloc[0])
+    # the fish swum twice counts once in the spread between fish (first swims only)
+    spread = tables["spread"].set_index(["species", "quantity"])
+    trout = "Oncorhynchus mykiss (hatchery)"
+    assert spread.loc[(trout, "ucrit"), "n_fish"] == 1
+    assert external_urls(rep.html(figures=False)) == []
