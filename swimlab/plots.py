@@ -404,3 +404,174 @@ def calibration_figure(points: Sequence[Mapping[str, float]]) -> go.Figure:
 def figure_payload_bytes(fig: go.Figure) -> int:
     """Return the size of the figure's JSON as sent to the browser. [bytes]"""
     return len(fig.to_json().encode("utf-8"))
+
+
+# --------------------------------------------------------------------------------------------
+# Protocols beyond the step test (each figure's title names its protocol)
+# --------------------------------------------------------------------------------------------
+
+PROTOCOL_COLOURS = ["#1f5fa8", "#c0392b", "#1e8449", "#7d3c98", "#b9770e", "#117a65"]
+"""Colours of the speeds or fish in the protocol figures (our own choice)."""
+
+
+def _own(table: pd.DataFrame | None, fish_id: str) -> pd.DataFrame:
+    if table is None or table.empty:
+        return pd.DataFrame()
+    return table[table["fish_id"].astype(str) == str(fish_id)]
+
+
+def ramp_mo2_figure(protocol: Any, fish_id: str) -> go.Figure | None:
+    """Ramp test: MO2 of each measure phase along the ramp against speed, with the ramp Umax marked.
+
+    ``protocol`` is an analysis's :class:`swimlab.protocol_analysis.ProtocolResults`.
+    """
+    own = _own(protocol.tables.get("ramp_phases"), fish_id)
+    if own.empty:
+        return None
+    speed = own["corrected_speed_cm_s"].fillna(own["set_speed_cm_s"])
+    used = own["used"].astype(bool)
+    fig = go.Figure()
+    for mask, name, symbol in ((used, "accepted phase", "circle"), (~used, "phase not used", "circle-open")):
+        if mask.any():
+            fig.add_trace(go.Scatter(x=speed[mask], y=own.loc[mask, "mo2_mg_kg_h"], mode="markers", name=name,
+                                     marker={"symbol": symbol, "size": 8, "color": PROTOCOL_COLOURS[0]},
+                                     hovertemplate="%{x:.1f} cm/s<br>MO2 %{y:.1f}<extra></extra>"))
+    summary = protocol.ramp.get(fish_id)
+    if summary is not None:
+        umax = summary.umax_corrected_m_s if summary.umax_corrected_m_s is not None else summary.on_set_speed.umax_m_s
+        fig.add_vline(x=umax * 100, line={"dash": "dash", "color": "#333"},
+                      annotation_text=f"ramp Umax {umax * 100:.1f} cm/s", annotation_position="top left")
+    fig.update_layout(title=f"Ramp test, fish {fish_id}: MO2 along the ramp",
+                      xaxis={"title": "Speed on the ramp, blocking-corrected [cm/s]"},
+                      yaxis={"title": "MO2 [mg O2/kg/h]", "rangemode": "tozero"}, template="plotly_white")
+    return fig
+
+
+def epoc_figure(protocol: Any, fish_id: str) -> go.Figure | None:
+    """Post-exercise recovery: MO2 after exhaustion, the fitted decay, the baseline and the EPOC between."""
+    own = _own(protocol.tables.get("recovery_curve"), fish_id)
+    res = protocol.recovery.get(fish_id)
+    if own.empty or res is None:
+        return None
+    t_min = own["time_after_exhaustion_min"].to_numpy(dtype=float)
+    top = float(t_min.max()) * 1.05
+    grid = np.linspace(0.0, top, 200)
+    base = res.baseline_mg_kg_h
+    fig = go.Figure()
+    fig.add_trace(go.Scatter(x=[0, top], y=[base, base], mode="lines", name=f"baseline ({res.baseline_method})",
+                             line={"dash": "dash", "color": "#555"}))
+    if res.fit is not None:
+        fig.add_trace(go.Scatter(x=grid, y=np.asarray(res.fit.mo2(grid * 60.0)), mode="lines",
+                                 name=f"fitted {res.fit.model.replace('_', '-')} decay", fill="tonexty",
+                                 fillcolor="rgba(31, 95, 168, 0.15)", line={"color": PROTOCOL_COLOURS[0], "width": 2}))
+    fig.add_trace(go.Scatter(x=t_min, y=own["mo2_mg_kg_h"], mode="markers", name="accepted phase",
+                             marker={"size": 7, "color": PROTOCOL_COLOURS[1]},
+                             hovertemplate="%{x:.0f} min<br>MO2 %{y:.1f}<extra></extra>"))
+    for t_s, label in ((res.t50_s, "50 %"), (res.t95_s, "95 %")):
+        if t_s is not None and t_s / 60.0 <= top:
+            fig.add_vline(x=t_s / 60.0, line={"dash": "dot", "color": "#999"}, annotation_text=label)
+    fig.update_layout(title=f"Post-exercise recovery (EPOC), fish {fish_id}",
+                      xaxis={"title": "Time after exhaustion [min]", "rangemode": "tozero"},
+                      yaxis={"title": "MO2 [mg O2/kg/h]", "rangemode": "tozero"}, template="plotly_white")
+    return fig
+
+
+def kaplan_meier_figure(summary: Any) -> go.Figure | None:
+    """Endurance: Kaplan–Meier share still swimming against time, one step line per set speed.
+
+    ``summary`` is a :class:`swimlab.protocol_analysis.EnduranceSummary`; censored fish are
+    marked with a cross at their time.
+    """
+    if summary is None or summary.kaplan_meier.empty:
+        return None
+    fig = go.Figure()
+    limit_min = summary.time_limit_s / 60.0
+    for i, (speed, part) in enumerate(summary.kaplan_meier.groupby("set_speed_cm_s", sort=True)):
+        colour = PROTOCOL_COLOURS[i % len(PROTOCOL_COLOURS)]
+        x = np.r_[0.0, part["time_min"].to_numpy(dtype=float)]
+        y = np.r_[1.0, part["share_swimming"].to_numpy(dtype=float)]
+        if x[-1] < limit_min:
+            x, y = np.r_[x, limit_min], np.r_[y, y[-1]]
+        fig.add_trace(go.Scatter(x=x, y=y, mode="lines", line_shape="hv", name=f"{speed:g} cm/s (set)",
+                                 line={"color": colour, "width": 2}, legendgroup=str(speed)))
+        cens = part[part["censored"] > 0]
+        if len(cens):
+            fig.add_trace(go.Scatter(x=cens["time_min"], y=cens["share_swimming"], mode="markers", showlegend=False,
+                                     marker={"symbol": "cross-thin", "size": 11, "line": {"width": 2, "color": colour}},
+                                     legendgroup=str(speed), hovertemplate="censored at %{x:.0f} min<extra></extra>"))
+    fig.update_layout(title="Endurance: share of fish still swimming (Kaplan–Meier)",
+                      xaxis={"title": "Time at the set speed [min]", "range": [0, limit_min * 1.03]},
+                      yaxis={"title": "Share still swimming [-]", "range": [-0.03, 1.05]}, template="plotly_white")
+    return fig
+
+
+def fatigue_curve_figure(summary: Any) -> go.Figure | None:
+    """Endurance: time to fatigue against speed (log time), censored fish open, and the fitted curve."""
+    if summary is None or summary.fish.empty:
+        return None
+    fish = summary.fish
+    use_cor = fish["corrected_speed_cm_s"].notna().all()
+    speed = fish["corrected_speed_cm_s"] if use_cor else fish["set_speed_cm_s"]
+    fig = go.Figure()
+    done = fish["fatigued"].astype(bool)
+    for mask, name, symbol in ((done, "fatigued", "circle"), (~done, "still swimming at the limit (censored)",
+                                                              "triangle-up-open")):
+        if mask.any():
+            fig.add_trace(go.Scatter(x=speed[mask], y=fish.loc[mask, "time_min"], mode="markers", name=name,
+                                     marker={"symbol": symbol, "size": 9, "color": PROTOCOL_COLOURS[0]},
+                                     text=fish.loc[mask, "fish_id"], hovertemplate="%{text}: %{y:.0f} min<extra></extra>"))
+    fit = summary.fatigue_curve
+    if fit is not None:
+        grid = np.linspace(float(speed.min()) * 0.95, float(speed.max()) * 1.05, 100)
+        fig.add_trace(go.Scatter(x=grid, y=np.asarray(fit.median_time_s(grid / 100.0)) / 60.0, mode="lines",
+                                 name="median endurance (censored fit)", line={"color": PROTOCOL_COLOURS[1]}))
+    x_ends = [float(speed.min()) * 0.95, float(speed.max()) * 1.05]
+    fig.add_trace(go.Scatter(x=x_ends, y=[summary.time_limit_s / 60.0] * 2, mode="lines", name="time limit",
+                             line={"dash": "dash", "color": "#555"}))
+    fig.update_layout(title="Endurance: fatigue curve",
+                      xaxis={"title": "Speed, blocking-corrected [cm/s]" if use_cor else "Set speed [cm/s]"},
+                      yaxis={"title": "Time to fatigue [min]", "type": "log"}, template="plotly_white")
+    return fig
+
+
+def gait_figure(protocol: Any, fish_id: str) -> go.Figure | None:
+    """Gait: bursts per minute at each step against speed, with the gait transition speed Up–c marked."""
+    own = _own(protocol.tables.get("gait_steps"), fish_id)
+    if own.empty:
+        return None
+    fig = go.Figure(go.Bar(x=own["speed_cm_s"], y=own["bursts_per_min"].fillna(0.0), name="bursts per minute",
+                           marker={"color": PROTOCOL_COLOURS[2]}, width=1.5,
+                           hovertemplate="step %{customdata}: %{y:.2f} /min<extra></extra>", customdata=own["step"]))
+    g = protocol.gait.get(fish_id)
+    if g is not None and g.upc_m_s is not None:
+        fig.add_vline(x=g.upc_m_s * 100, line={"dash": "dash", "color": "#333"},
+                      annotation_text=f"Up–c {g.upc_m_s * 100:.1f} cm/s", annotation_position="top left")
+    fig.update_layout(title=f"Gait, fish {fish_id}: bursts per minute at each step",
+                      xaxis={"title": "Speed, blocking-corrected [cm/s]"},
+                      yaxis={"title": "Bursts per minute [1/min]", "rangemode": "tozero"}, template="plotly_white")
+    return fig
+
+
+def frequency_speed_figure(protocol: Any, fish_id: str) -> go.Figure | None:
+    """Kinematics: tail-beat frequency against speed, the fish's line and Bainbridge's (1958) relation."""
+    own = _own(protocol.tables.get("kinematics"), fish_id)
+    res = protocol.kinematics.get(fish_id)
+    if own.empty or res is None:
+        return None
+    fig = go.Figure(go.Scatter(x=own["speed_cm_s"], y=own["frequency_hz"], mode="markers", name="tail-beat record",
+                               marker={"size": 8, "color": PROTOCOL_COLOURS[0]},
+                               hovertemplate="%{x:.1f} cm/s: %{y:.2f} Hz<extra></extra>"))
+    grid = np.linspace(0.0, float(own["speed_cm_s"].max()) * 1.1, 50)
+    if res.line is not None:  # drawn over the speeds with tail beats only
+        beating = own[own["frequency_hz"] > 0]["speed_cm_s"]
+        span = np.linspace(float(beating.min()), float(beating.max()), 20)
+        fig.add_trace(go.Scatter(x=span, y=np.asarray(res.line.frequency_hz(span / 100.0)), mode="lines",
+                                 name="frequency–speed line", line={"color": PROTOCOL_COLOURS[0]}))
+    # Bainbridge (1958): U = ¼ L (3f − 4), i.e. f = (4 U / L + 4) / 3
+    length_cm = res.body_length_m * 100.0
+    fig.add_trace(go.Scatter(x=grid, y=(4.0 * grid / length_cm + 4.0) / 3.0, mode="lines",
+                             name="Bainbridge (1958), for comparison", line={"dash": "dot", "color": "#777"}))
+    fig.update_layout(title=f"Kinematics, fish {fish_id}: tail-beat frequency against speed",
+                      xaxis={"title": "Speed, blocking-corrected [cm/s]", "rangemode": "tozero"},
+                      yaxis={"title": "Tail-beat frequency [Hz]", "rangemode": "tozero"}, template="plotly_white")
+    return fig

@@ -649,3 +649,27 @@ def test_command_line_prints_protocol_results_with_their_names(capsys, tmp_path)
     assert "  BW26-R01  ucrit" not in out  # a ramp prints no step Ucrit
     exported = pd.read_csv(tmp_path / "r01" / "protocol_results.csv")
     assert set(exported["protocol"]) == {"ramp"} and exported["label"].str.startswith("Ramp").all()
+
+
+def test_protocol_figures_carry_their_protocol_names(ramp_trial, recovery_analysis, gait_analysis, endurance_items):
+    from swimlab import plots
+
+    ramp_fig = plots.ramp_mo2_figure(ramp_trial[2].protocol, "FH-1")
+    assert ramp_fig.layout.title.text.startswith("Ramp test")
+    assert any("ramp Umax" in (a.text or "") for a in ramp_fig.layout.annotations)
+    epoc_fig = plots.epoc_figure(recovery_analysis[1].protocol, "FH-1")
+    assert epoc_fig.layout.title.text.startswith("Post-exercise recovery (EPOC)")
+    assert [t.name for t in epoc_fig.data][:2] == ["baseline (pre_exercise)", "fitted one-phase decay"]
+    pr = gait_analysis[1].protocol
+    assert plots.gait_figure(pr, "FH-W1").layout.title.text.startswith("Gait")
+    tail = plots.frequency_speed_figure(pr, "FH-W1")
+    assert tail.layout.title.text.startswith("Kinematics")
+    bainbridge = next(t for t in tail.data if t.name.startswith("Bainbridge"))
+    # the comparison line is Bainbridge's (1958) U = ¼ L (3f − 4) solved for f, L = 26 cm
+    np.testing.assert_allclose(bainbridge.y, (4 * np.asarray(bainbridge.x) / 26.0 + 4) / 3, rtol=1e-12)
+    summary = endurance_summary(endurance_items)
+    km = plots.kaplan_meier_figure(summary)
+    assert km.layout.title.text.startswith("Endurance") and len([t for t in km.data if t.showlegend is not False]) == 3
+    assert plots.fatigue_curve_figure(summary).layout.yaxis.type == "log"
+    # nothing to draw: None, not an empty figure
+    assert plots.ramp_mo2_figure(pr, "FH-W1") is None and plots.epoc_figure(pr, "FH-W1") is None
