@@ -351,6 +351,7 @@ lab_settings_table = sa.Table(
     sa.Column("mappings", sa.Text, nullable=False),
     sa.Column("updated_at", sa.String(40), nullable=False),
     sa.Column("updated_by", sa.Text, nullable=False),
+    sa.Column("single_user_name", sa.Text, nullable=False),
 )
 people_table = sa.Table(
     "people",
@@ -498,6 +499,12 @@ _STEP_3 = [
 ]
 
 
+_STEP_4 = [
+    # The name of the one person of single-user mode, asked once and kept.
+    "ALTER TABLE lab_settings ADD COLUMN single_user_name TEXT NOT NULL DEFAULT ''",
+]
+
+
 @dataclass(frozen=True)
 class Migration:
     """One schema step: its number, what it does, and its statements per dialect."""
@@ -527,6 +534,7 @@ MIGRATIONS: tuple[Migration, ...] = (
         "people and roles; sessions' creator; how each audit entry's identity was established",
         tuple(s.replace("{", "{{").replace("}", "}}") for s in _STEP_3),
     ),
+    Migration(4, "the kept name of single-user mode", tuple(_STEP_4)),
 )
 """The ordered schema steps. Append new steps; never edit a released one."""
 
@@ -1670,6 +1678,50 @@ class LabBook:
                 at=at,
                 via=actor.via,
             )
+
+    def single_user_name(self) -> str:
+        """The name kept for single-user mode (``""`` until someone gave one)."""
+        with self._engine.connect() as conn:
+            return (
+                conn.execute(
+                    sa.select(lab_settings_table.c.single_user_name).where(
+                        lab_settings_table.c.id == 1
+                    )
+                ).scalar()
+                or ""
+            )
+
+    def set_single_user_name(self, name: str) -> str:
+        """Keep the name of the person working in single-user mode; recorded in the trail.
+
+        Raises
+        ------
+        InputError
+            If the name is empty or longer than 200 characters (field ``name``).
+        """
+        name = _person(name, "name")
+        at = _now()
+        with self._engine.begin() as conn:
+            old = self._settings_row(conn)["single_user_name"]
+            if old == name:
+                return name
+            conn.execute(
+                lab_settings_table.update()
+                .where(lab_settings_table.c.id == 1)
+                .values(single_user_name=name)
+            )
+            self._audit(
+                conn,
+                session_id=None,
+                who=name,
+                action="single-user name set",
+                changes=[{"field": "single_user_name", "from": old or None, "to": name}],
+                reason="",
+                version=None,
+                at=at,
+                via=auth.VIA_SINGLE_USER,
+            )
+        return name
 
     def recall_mapping(self, fingerprint: str) -> dict[str, Any] | None:
         """The remembered column mapping for this header fingerprint, or ``None``."""

@@ -49,7 +49,7 @@ def labbook(request, tmp_path):
         book = request.getfixturevalue("_postgres_book")
         with book._engine.begin() as conn:
             conn.exec_driver_sql(f"TRUNCATE {_DATA_TABLES} RESTART IDENTITY CASCADE")
-            conn.exec_driver_sql("UPDATE lab_settings SET settings = '{}', mappings = '{}'")
+            conn.exec_driver_sql("UPDATE lab_settings SET settings = '{}', mappings = '{}', single_user_name = ''")
         yield book
         return
     shm = "/dev/shm"

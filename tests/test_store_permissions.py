@@ -46,7 +46,7 @@ def labbook(request, tmp_path):
         book = request.getfixturevalue("_postgres_book")
         with book._engine.begin() as conn:
             conn.exec_driver_sql(f"TRUNCATE {_DATA_TABLES} RESTART IDENTITY CASCADE")
-            conn.exec_driver_sql("UPDATE lab_settings SET settings = '{}', mappings = '{}'")
+            conn.exec_driver_sql("UPDATE lab_settings SET settings = '{}', mappings = '{}', single_user_name = ''")
         yield book
         return
     shm = "/dev/shm"
@@ -499,3 +499,15 @@ def test_people_details_are_for_admins_and_oneself(labbook):
     for call in (lambda: ben.list_people(), lambda: ben.get_person("olga")):
         with pytest.raises(PermissionDeniedError, match="manage people"):
             call()
+
+
+def test_the_single_user_name_is_kept_in_the_lab_book(labbook):
+    assert labbook.single_user_name() == ""
+    assert labbook.set_single_user_name("  R. Operator ") == "R. Operator"
+    labbook.set_single_user_name("R. Operator")  # the same again: nothing new
+    assert labbook.single_user_name() == "R. Operator"
+    with pytest.raises(InputError) as info:
+        labbook.set_single_user_name(" ")
+    assert info.value.field == "name" and labbook.single_user_name() == "R. Operator"
+    entries = labbook.audit_trail(None)
+    assert entries[["who", "action", "via"]].values.tolist() == [["R. Operator", "single-user name set", "single-user"]]
