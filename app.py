@@ -53,22 +53,32 @@ def _load_demo_sessions(url: str | None, demo_dir: str) -> tuple[int, tuple[str,
     return loaded, tuple(problems)
 
 
-pages = {
-    "Trial": [
-        st.Page(common.PAGE_FILES["lab_book"], title="Lab book", icon=":material/menu_book:", default=True),
-        st.Page(common.PAGE_FILES["setup"], title="Set-up", icon=":material/edit_note:"),
-        st.Page(common.PAGE_FILES["trace"], title="Oxygen trace", icon=":material/show_chart:"),
-        st.Page(common.PAGE_FILES["checks"], title="Checks", icon=":material/rule:"),
-        st.Page(common.PAGE_FILES["results"], title="Results", icon=":material/insights:"),
-    ],
-    "Sign-off": [
-        st.Page(common.PAGE_FILES["review"], title="Review", icon=":material/verified:"),
-        st.Page(common.PAGE_FILES["care"], title="Care and cautions", icon=":material/pets:"),
-    ],
-}
-page = st.navigation(pages)
+from swimlab import auth  # noqa: E402 - after set_page_config
 
-book = common.labbook()
+mode = common.app_mode()
+client_ip = st.context.ip_address  # None for this computer (Streamlit maps loopback to None)
+if mode == auth.SINGLE_USER and isinstance(client_ip, str) and client_ip and not auth.is_loopback(client_ip):
+    # Single-user mode asks for no password: it serves this computer only.
+    st.error(
+        "This swimlab runs in single-user mode, which asks for no password, so it answers only "
+        "on the computer it runs on. To share it with a lab, run it in lab-server mode "
+        "(mode = \"lab-server\" in swimlab.toml) so that everyone signs in."
+    )
+    st.stop()
+
+plain = common.plain_labbook()
+person = common.check_sign_in(plain) if mode == auth.LAB_SERVER else None
+
+if mode == auth.LAB_SERVER and person is None:
+    # Nobody signed in: the sign-in page is the only page there is.
+    page = st.navigation([st.Page(common.PAGE_FILES["sign_in"], title="Sign in", icon=":material/login:",
+                                  default=True)])
+    common.footer(plain)
+    page.run()
+    st.stop()
+
+page = st.navigation(common.page_list(mode, person))
+
 try:
     loaded, demo_problems = _load_demo_sessions(common.database_url(), str(DEMO_DIR))
 except ImportError as exc:
@@ -77,13 +87,36 @@ if loaded and not st.session_state.get("app_demo_told"):
     st.session_state["app_demo_told"] = True
     st.toast(f"The lab book was empty: {loaded} demo session(s) loaded.")
 
+
+def _keep_name() -> None:
+    """Keep the name typed in single-user mode in the lab book (asked once)."""
+    name = str(st.session_state.get("app_user") or "").strip()
+    if name:
+        try:
+            plain.set_single_user_name(name)
+        except (ValueError, OSError) as exc:
+            st.session_state["app_name_problem"] = str(exc)
+
+
 with st.sidebar:
-    st.text_input("Your name", key="app_user", help="Recorded in the audit trail with every save.",
-                  placeholder="e.g. A. Student")
+    if mode == auth.LAB_SERVER:
+        st.markdown(f"Signed in as **{person}** · {person.role}")
+        if st.button("Sign out", key="app_sign_out", icon=":material/logout:"):
+            common.sign_out()
+    else:
+        if "app_user" not in st.session_state:
+            st.session_state["app_user"] = plain.single_user_name()
+        st.text_input("Your name", key="app_user", on_change=_keep_name,
+                      help="Asked once and kept in the lab book; recorded in the audit trail with every action.",
+                      placeholder="e.g. A. Student")
+        if not st.session_state.get("app_user"):
+            st.caption("Type your name once: it is kept, and every save is recorded under it.")
+        if st.session_state.get("app_name_problem"):
+            st.error(f"Your name: {st.session_state.pop('app_name_problem')}")
     if demo_problems:
         with st.expander("Demo sessions not loaded"):
             for line in demo_problems:
                 st.caption(line)
 
-common.footer(book)  # before the page: a page may st.stop() early
+common.footer(plain)  # before the page: a page may st.stop() early
 page.run()

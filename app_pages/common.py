@@ -27,6 +27,8 @@ PAGE_FILES = {
     "results": "app_pages/results.py",
     "review": "app_pages/review.py",
     "care": "app_pages/care.py",
+    "people": "app_pages/people.py",
+    "sign_in": "app_pages/sign_in.py",
 }
 
 DEFAULT_DATABASE_HINT = "sqlite:///labbook/swimlab.sqlite"
@@ -50,7 +52,21 @@ def _open_labbook(url: str | None):
 
 
 def labbook():
-    """Return the lab book, or show why it cannot be opened and stop the page."""
+    """The lab book as the person at this browser acts on it (every action checked there).
+
+    Single-user mode: the person is the name kept in the sidebar. Lab-server mode: the signed-in
+    person; before sign-in the page stops. See :meth:`swimlab.store.LabBook.as_person`.
+    """
+    plain = plain_labbook()
+    person = acting_person()
+    if person is None:
+        st.warning("Sign in first.")
+        st.stop()
+    return plain.as_person(person)
+
+
+def plain_labbook():
+    """Return the lab book itself (the trusted interface), or show why it cannot be opened."""
     try:
         return _open_labbook(database_url())
     except ImportError as exc:
@@ -117,8 +133,143 @@ def effective_settings(book: Any, work: Mapping[str, Any] | None = None) -> LabS
 
 
 def user_name() -> str:
-    """The name typed in the sidebar, used as 'who' for every action."""
+    """Who acts: the signed-in person's name (lab server) or the name in the sidebar."""
+    person = signed_in()
+    if person is not None:
+        return person.display_name
     return str(st.session_state.get("app_user") or "").strip()
+
+
+# --------------------------------------------------------------------------------------------
+# People: the mode, who is signed in, and the pages each role sees
+# --------------------------------------------------------------------------------------------
+
+
+def app_mode() -> str:
+    """``single-user`` or ``lab-server`` (:func:`swimlab.auth.resolve_mode`); a bad setting stops."""
+    from swimlab import auth
+
+    try:
+        return auth.resolve_mode()[0]
+    except InputError as exc:
+        st.error(f"The mode setting is not usable: {exc}")
+        st.stop()
+
+
+def signed_in():
+    """The signed-in :class:`~swimlab.auth.Person` in lab-server mode, else None."""
+    from swimlab import auth
+
+    if app_mode() != auth.LAB_SERVER:
+        return None
+    return st.session_state.get("app_person")
+
+
+def acting_person():
+    """The person who acts: signed in (lab server) or the one of single-user mode."""
+    from swimlab import auth
+
+    if app_mode() == auth.LAB_SERVER:
+        return st.session_state.get("app_person")
+    name = str(st.session_state.get("app_user") or "").strip() or "unnamed"
+    return auth.Person.single_user(name)
+
+
+def oidc_section() -> Mapping[str, Any] | None:
+    """The ``[auth]`` section of ``.streamlit/secrets.toml`` when single sign-on is set up."""
+    from swimlab import auth
+
+    try:
+        section = st.secrets.get("auth")
+    except Exception:  # noqa: BLE001 - no secrets file: no single sign-on
+        return None
+    return section if auth.oidc_configured(section) else None
+
+
+def _sso_logged_in() -> bool:
+    try:
+        return bool(st.user.is_logged_in)
+    except Exception:  # noqa: BLE001 - single sign-on not set up
+        return False
+
+
+def sign_out() -> None:
+    """Forget everything of this browser session (and leave single sign-on), then start over."""
+    sso = _sso_logged_in()
+    for key in list(st.session_state.keys()):
+        del st.session_state[key]
+    if sso:
+        st.logout()
+    st.rerun()
+
+
+def check_sign_in(book: Any):
+    """Lab-server mode: the signed-in person, checked against the lab book at every page run.
+
+    Takes up a single-sign-on identity (``st.user``) the first time; signs out a person whose
+    account was deactivated; picks up a changed role or name (so the page list follows at once).
+    Returns the person, or None when nobody is signed in.
+    """
+    from dataclasses import replace
+
+    from swimlab.auth import LoginError
+
+    person = st.session_state.get("app_person")
+    if person is None and _sso_logged_in() and oidc_section() is not None:
+        try:
+            person = book.person_for_claims(st.user.to_dict())
+        except LoginError as exc:
+            st.session_state["app_sign_in_error"] = str(exc)
+            return None
+        st.session_state["app_person"] = person
+    if person is None:
+        return None
+    try:
+        account = book.get_person(person.username)
+    except InputError:
+        account = None
+    if account is None or not account.active:
+        sign_out()
+    if (account.role, account.display_name) != (person.role, person.display_name):
+        person = replace(person, role=account.role, display_name=account.display_name)
+        st.session_state["app_person"] = person
+    return person
+
+
+def page_list(mode: str, person: Any) -> dict[str, list]:
+    """The pages this person may open, by section. A page left out answers "page not found"."""
+    from swimlab import auth
+
+    trial = [
+        st.Page(PAGE_FILES["lab_book"], title="Lab book", icon=":material/menu_book:", default=True),
+        st.Page(PAGE_FILES["setup"], title="Set-up", icon=":material/edit_note:"),
+        st.Page(PAGE_FILES["trace"], title="Oxygen trace", icon=":material/show_chart:"),
+        st.Page(PAGE_FILES["checks"], title="Checks", icon=":material/rule:"),
+        st.Page(PAGE_FILES["results"], title="Results", icon=":material/insights:"),
+    ]
+    sign_off = []
+    if mode == auth.SINGLE_USER or auth.allowed(person.role, auth.APPROVE):
+        sign_off.append(st.Page(PAGE_FILES["review"], title="Review", icon=":material/verified:"))
+    sign_off.append(st.Page(PAGE_FILES["care"], title="Care and cautions", icon=":material/pets:"))
+    pages = {"Trial": trial, "Sign-off": sign_off}
+    if mode == auth.LAB_SERVER and auth.allowed(person.role, auth.MANAGE_PEOPLE):
+        pages["Lab"] = [st.Page(PAGE_FILES["people"], title="People", icon=":material/group:")]
+    return pages
+
+
+def identity_line() -> str:
+    """The mode and who acts, for the footer of every page."""
+    from swimlab import auth
+
+    mode = app_mode()
+    if mode == auth.LAB_SERVER:
+        person = st.session_state.get("app_person")
+        if person is None:
+            return "lab-server mode · not signed in"
+        how = "single sign-on" if person.via == auth.VIA_OIDC else "password"
+        return f"lab-server mode · signed in as {person} · {person.role} · by {how}"
+    name = str(st.session_state.get("app_user") or "").strip()
+    return f"single-user mode · working as {name or '(no name yet)'} · no sign-in"
 
 
 # --------------------------------------------------------------------------------------------
@@ -418,3 +569,4 @@ def footer(book: Any = None) -> None:
 
     st.sidebar.divider()
     st.sidebar.caption(f"swimlab {__version__} · lab book: `{masked_url(book)}`")
+    st.sidebar.caption(identity_line())

@@ -68,8 +68,13 @@ if chosen is not None:
 
     st.subheader("Decision")
     cols = st.columns([1, 2])
-    reviewer = cols[0].text_input("Reviewer's name", key="rv_name",
-                                  help="Must differ from the operator's and the submitter's (four eyes).")
+    me = common.signed_in()
+    if me is not None:  # lab-server mode: the reviewer is whoever signed in
+        reviewer = me.display_name
+        cols[0].text_input("Reviewer", value=str(me), disabled=True, key="rv_name_signed_in")
+    else:
+        reviewer = cols[0].text_input("Reviewer's name", key="rv_name",
+                                      help="Must differ from the operator's and the submitter's (four eyes).")
     comment = cols[1].text_area("Comment", key="rv_comment", height=80,
                                 placeholder="Required when returning: say what to change.")
     same = reviewer.strip() and reviewer.strip().casefold() == (session.operator or "").strip().casefold()
@@ -103,7 +108,8 @@ if not approved.empty:
         pick = st.selectbox("Approved session", list(approved["session_id"]), format_func=lambda s: labels.get(s, s),
                             key="rv_reopen_id")
         why = st.text_input("Reason", key="rv_reopen_reason")
-        who = st.text_input("Your name", key="rv_reopen_who")
+        me = common.signed_in()
+        who = me.display_name if me is not None else st.text_input("Your name", key="rv_reopen_who")
         if st.button("Reopen", key="rv_reopen"):
             try:
                 book.reopen(pick, who=who.strip(), reason=why.strip())
