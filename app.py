@@ -77,7 +77,9 @@ if mode == auth.LAB_SERVER and person is None:
     page.run()
     st.stop()
 
-page = st.navigation(common.page_list(mode, person))
+pages = common.page_list(mode, person)
+pages["Trial"].append(st.Page("app_pages/protocols.py", title="Protocols", icon=":material/science:"))
+page = st.navigation(pages)
 
 try:
     loaded, demo_problems = _load_demo_sessions(common.database_url(), str(DEMO_DIR))
