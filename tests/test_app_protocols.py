@@ -113,3 +113,17 @@ def test_tail_beat_count_without_a_window_is_refused(lab):
     assert not at.exception, at.exception
     assert "Tail beats, row 7, Counting window [s]: a tail-beat count needs its counting window" in _texts(at.error)
     assert "pr_save" not in [b.key for b in at.button]  # nothing can be saved while it is wrong
+
+
+def test_protocols_page_is_in_the_navigation(lab, tmp_path, monkeypatch):
+    monkeypatch.setenv("SWIMLAB_DEMO_DIR", str(tmp_path / "no-demo"))  # the lab book already holds the demos
+    at = AppTest.from_file(str(ROOT / "app.py"), default_timeout=TIMEOUT)
+    at.run()
+    assert not at.exception, at.exception
+    at.selectbox(key="lb_open_id").set_value("bw26-r01-ramp").run()
+    at.button(key="lb_open").click().run()
+    assert not at.exception, at.exception
+    at.switch_page("app_pages/protocols.py").run()
+    assert not at.exception, at.exception
+    assert at.title[0].value == "Protocols"
+    assert "Ramp Umax" in _quantities(at)
