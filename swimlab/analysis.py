@@ -32,6 +32,7 @@ from swimlab import (
     uptake,
     water,
 )
+from swimlab._tables import json_records
 from swimlab.errors import InputError, OutOfRangeError
 from swimlab.io import logger
 from swimlab.session import Session, step_table
@@ -91,25 +92,15 @@ class Analysis:
             "session_id": self.session_id,
             "settings": self.settings.to_dict(),
             "water": self.water,
-            "fish": _records(self.fish),
-            "steps": _records(self.steps),
-            "measure_phases": _records(self.measure),
-            "results": _records(self.results),
+            "fish": json_records(self.fish),
+            "steps": json_records(self.steps),
+            "measure_phases": json_records(self.measure),
+            "results": json_records(self.results),
             "fits": fits,
-            "flags": _records(self.flags),
-            "import_report": _records(self.import_report),
+            "flags": json_records(self.flags),
+            "import_report": json_records(self.import_report),
             "protocol": None if self.protocol is None else self.protocol.to_json_dict(),
         }
-
-
-def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
-    if frame is None or frame.empty:
-        return []
-    clean = frame.astype(object).where(pd.notna(frame), None)
-    out = []
-    for row in clean.to_dict(orient="records"):
-        out.append({k: (v.item() if isinstance(v, np.generic) else v) for k, v in row.items()})
-    return out
 
 
 def effective_settings(session: Session, lab_settings: Mapping[str, Any] | None = None) -> LabSettings:

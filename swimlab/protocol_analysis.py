@@ -51,6 +51,7 @@ import pandas as pd
 from scipy import stats
 
 from swimlab import checks, flume
+from swimlab._tables import json_records
 from swimlab.errors import InputError
 from swimlab.protocols import endurance, gait, kinematics, ramp, recovery, repeat
 from swimlab.session import PROTOCOL_LABELS, RECOVERY_BASELINES, Session, step_table
@@ -310,22 +311,12 @@ class ProtocolResults:
             "protocol": self.protocol,
             "label": self.label,
             "first_swim_session_id": self.first_swim_session_id,
-            "results": _records(self.results),
-            "tables": {name: _records(frame) for name, frame in self.tables.items()},
+            "results": json_records(self.results),
+            "tables": {name: json_records(frame) for name, frame in self.tables.items()},
             "fits": fits,
             "problems": [{"part": p.part, "fish_id": p.fish_id, "field": p.field, "message": p.message}
                          for p in self.problems],
         }
-
-
-def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
-    if frame is None or frame.empty:
-        return []
-    clean = frame.astype(object).where(pd.notna(frame), None)
-    out = []
-    for row in clean.to_dict(orient="records"):
-        out.append({k: (v.item() if isinstance(v, np.generic) else v) for k, v in row.items()})
-    return out
 
 
 # =============================================================================================
