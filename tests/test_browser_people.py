@@ -188,3 +188,106 @@ def test_two_people_two_contexts_and_cookies_that_sign_nobody_in(lab_server):
         record = book.sign_off("kb03lab")
         assert (record["entered_by"], record["approved_by"]) == ("ana", "ben")
     assert SHOTS.is_dir()
+
+
+# --------------------------------------------------------------------------------------------
+# Single sign-on (OpenID Connect) against a local test provider
+# --------------------------------------------------------------------------------------------
+
+
+@pytest.fixture
+def sso_server(tmp_path, monkeypatch):
+    """Lab-server mode with st.login set up against oidc-provider-mock on this computer.
+
+    ben@lab.example is a reviewer of the lab (no local password); the provider vouches for any
+    address typed into its form, so a stranger can be tried too.
+    """
+    _require_chromium()
+    oidc_provider_mock = pytest.importorskip("oidc_provider_mock")
+    pytest.importorskip("authlib")  # streamlit[auth]
+    from swimlab.store import LabBook
+
+    url = f"sqlite:///{tmp_path / 'labbook.sqlite'}"
+    with LabBook.open(url) as book:
+        book.add_person("ben", display_name="Ben Okafor", role="reviewer", email="ben@lab.example", who="setup")
+        book.add_person("pi", display_name="P. Investigator", role="admin", who="setup")
+    (tmp_path / "demo").mkdir()
+    port = free_port()
+    with oidc_provider_mock.run_server_in_thread() as provider:
+        secrets = tmp_path / "secrets.toml"
+        secrets.write_text(
+            "[auth]\n"
+            f'redirect_uri = "http://localhost:{port}/oauth2callback"\n'
+            f'cookie_secret = "{os.urandom(16).hex()}"\n'
+            'client_id = "swimlab-test"\n'
+            'client_secret = "not-a-real-secret"\n'
+            f'server_metadata_url = "http://localhost:{provider.server_port}/.well-known/openid-configuration"\n'
+        )
+        monkeypatch.setenv("SWIMLAB_MODE", "lab-server")
+        monkeypatch.setenv("STREAMLIT_SECRETS_FILES", str(secrets))
+        proc = start_app(url, str(tmp_path / "demo"), port, tmp_path / "streamlit.log")
+        try:
+            yield f"http://localhost:{port}/", url
+        finally:
+            stop_app(proc)
+
+
+def _sso_sign_in(page, base_url: str, email: str) -> None:
+    page.goto(base_url)
+    page.wait_for_selector('h1:has-text("Sign in")')
+    idle(page)
+    page.get_by_role("button", name="Sign in with your institution's single sign-on").click()
+    page.locator('input[name="sub"]').fill(email)  # the test provider's own form
+    page.locator('button[type="submit"], input[type="submit"]').first.click()
+    page.wait_for_url(base_url + "**")
+    idle(page)
+
+
+def test_single_sign_on_maps_to_the_lab_s_people(sso_server):
+    from playwright.sync_api import sync_playwright
+
+    from swimlab.store import LabBook
+
+    base_url, db_url = sso_server
+    with sync_playwright() as p:
+        browser = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
+        ctx = browser.new_context(viewport=VIEWPORT)
+        page = ctx.new_page()
+        page.set_default_timeout(60_000)
+        pages = [page]
+        try:
+            _sso_sign_in(page, base_url, "ben@lab.example")
+            page.wait_for_selector('h1:has-text("Lab book")')
+            assert "signed in as Ben Okafor (ben) · reviewer · by single sign-on" in _sidebar(page)
+            shot(page, "people-04-single-sign-on")
+
+            # Streamlit keeps a single-sign-on identity in a signed cookie: copied, it is a bearer
+            # token (docs/security.md). The lab book is the guard: once the person is
+            # deactivated, the same cookie signs nobody in.
+            cookies = ctx.cookies()
+            assert any(c["name"].startswith("_streamlit_user") and c["httpOnly"] for c in cookies)
+            with LabBook.open(db_url) as book:
+                book.set_active("ben", False, who="pi", reason="left the lab")
+            other = browser.new_context(viewport=VIEWPORT)
+            other.add_cookies(cookies)
+            copy = other.new_page()
+            pages.append(copy)
+            copy.goto(base_url)
+            copy.get_by_text("not an active member of this lab book").first.wait_for()
+            idle(copy)
+            assert "not signed in" in _sidebar(copy)
+
+            # Someone the provider knows but the lab has not added is kept out.
+            stranger_ctx = browser.new_context(viewport=VIEWPORT)
+            stranger = stranger_ctx.new_page()
+            pages.append(stranger)
+            _sso_sign_in(stranger, base_url, "stranger@elsewhere.example")
+            stranger.get_by_text("stranger@elsewhere.example is not an active member").first.wait_for()
+            assert "not signed in" in _sidebar(stranger)
+            shot(stranger, "people-05-stranger-kept-out")
+        except Exception:
+            for i, shown in enumerate(pages):
+                shot(shown, f"debug-sso-{i}")
+            raise
+        finally:
+            browser.close()
