@@ -223,3 +223,28 @@ def test_sign_out_forgets_the_session(server):
     at.button(key="app_sign_out").click().run()
     assert not at.exception, at.exception
     assert at.title[0].value == "Sign in" and "app_person" not in at.session_state
+
+
+def test_an_admin_unlocks_and_deactivates_on_the_people_page(server):
+    server.set_lab_settings({"login_attempts_max": 1}, who="pi", reason="strict")
+    with pytest.raises(auth.LockedOutError):
+        server.login("ana", "not the password at all")
+    at = _sign_in(_app(), "pi", PI)
+    at.switch_page("app_pages/people.py").run()
+    at.selectbox(key="pp_who").set_value("ana").run()
+    at.button(key="pp_unlock").click().run()
+    assert not at.exception, at.exception
+    assert server.get_person("ana").locked_until == ""
+    at.selectbox(key="pp_who").set_value("ana").run()
+    at.text_input(key="pp_why").input("left the lab").run()
+    at.button(key="pp_deactivate").click().run()
+    assert not server.get_person("ana").active
+    actions = server.audit_trail(None)[["who", "action"]].values.tolist()[-2:]
+    assert actions == [["pi", "person unlocked"], ["pi", "person deactivated"]]
+    # the last admin cannot take themselves out, and the page says why
+    at.selectbox(key="pp_who").set_value("pi").run()
+    at.text_input(key="pp_why").input("stepping down").run()
+    at.selectbox(key="pp_role").set_value("reviewer").run()
+    at.button(key="pp_set_role").click().run()
+    assert "Not done: 'pi' is the lab's last active admin" in _texts(at.error)
+    assert server.get_person("pi").role == "admin"
