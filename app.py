@@ -105,6 +105,8 @@ with st.sidebar:
         st.markdown(f"Signed in as **{person}** · {person.role}")
         if st.button("Sign out", key="app_sign_out", icon=":material/logout:"):
             common.sign_out()
+        if person.via == auth.VIA_PASSWORD:
+            common.own_password_form(plain.as_person(person))
     else:
         if "app_user" not in st.session_state:
             st.session_state["app_user"] = plain.single_user_name()

@@ -236,6 +236,28 @@ def check_sign_in(book: Any):
     return person
 
 
+def own_password_form(book: Any) -> None:
+    """A small form to change one's own local password (the current one is asked first)."""
+    from swimlab.auth import LoginError
+
+    with st.expander("Change my password"), st.form("app_password_form", clear_on_submit=True):
+        current = st.text_input("Current password", type="password", autocomplete="current-password")
+        new = st.text_input("New password", type="password", autocomplete="new-password")
+        again = st.text_input("New password again", type="password", autocomplete="new-password")
+        if st.form_submit_button("Change"):
+            if new != again:
+                st.error("New password: the two entries differ; nothing was changed.")
+                return
+            try:
+                book.change_own_password(current, new)
+            except LoginError:
+                st.error("Current password: it is not right (this counts as a failed login).")
+            except (InputError, PermissionDeniedError) as exc:
+                st.error(f"Not changed: {exc}")
+            else:
+                st.success("Password changed.")
+
+
 def page_list(mode: str, person: Any) -> dict[str, list]:
     """The pages this person may open, by section. A page left out answers "page not found"."""
     from swimlab import auth

@@ -104,6 +104,21 @@ if not people.empty:
             _try(lambda: book.set_password(who, new_password, reason="set on the People page"),
                  f"New password set for {who}.")
 
+st.subheader("Sign-in settings")
+settings = book.get_lab_settings()
+with st.form("pp_login_settings"):
+    cols = st.columns(3)
+    attempts = cols[0].number_input("Failed logins before a lock-out", min_value=1, max_value=100, step=1,
+                                    value=int(settings.login_attempts_max))
+    minutes = cols[1].number_input("Lock-out [min]", min_value=1.0, max_value=1440.0, step=1.0,
+                                   value=float(settings.login_lockout_min))
+    why_settings = cols[2].text_input("Why (for the audit trail)", key="pp_settings_why")
+    save_settings = st.form_submit_button("Save sign-in settings")
+if save_settings:
+    overrides = {**book.get_lab_setting_overrides(), "login_attempts_max": int(attempts),
+                 "login_lockout_min": float(minutes)}
+    _try(lambda: book.set_lab_settings(overrides, reason=why_settings), "Sign-in settings saved.")
+
 common.explain(
     "Roles and what the lab book enforces",
     "Operators create, edit and submit their own sessions. Reviewers may also approve, return and reopen "

@@ -248,3 +248,34 @@ def test_an_admin_unlocks_and_deactivates_on_the_people_page(server):
     at.button(key="pp_set_role").click().run()
     assert "Not done: 'pi' is the lab's last active admin" in _texts(at.error)
     assert server.get_person("pi").role == "admin"
+
+
+def test_a_person_changes_their_own_password(server):
+    at = _sign_in(_app(), "ana", ANA)
+    boxes = {t.label: t for t in at.sidebar.text_input}
+    boxes["Current password"].input("not my password at all")
+    boxes["New password"].input("a brand new long password")
+    boxes["New password again"].input("a brand new long password")
+    next(b for b in at.sidebar.button if b.label == "Change").click().run()
+    assert "Current password: it is not right" in _texts(at.sidebar.error)
+    assert server.get_person("ana").failed_logins == 1
+    boxes = {t.label: t for t in at.sidebar.text_input}
+    boxes["Current password"].input(ANA)
+    boxes["New password"].input("a brand new long password")
+    boxes["New password again"].input("a brand new long password")
+    next(b for b in at.sidebar.button if b.label == "Change").click().run()
+    assert "Password changed." in _texts(at.sidebar.success)
+    assert server.login("ana", "a brand new long password").username == "ana"
+
+
+def test_an_admin_sets_the_lock_out_on_the_people_page(server):
+    at = _sign_in(_app(), "pi", PI)
+    at.switch_page("app_pages/people.py").run()
+    at.number_input[0].set_value(3)
+    at.number_input[1].set_value(30.0)
+    at.text_input(key="pp_settings_why").input("lab meeting")
+    next(b for b in at.button if b.label == "Save sign-in settings").click().run()
+    assert not at.exception, at.exception
+    settings = server.get_lab_settings()
+    assert (settings.login_attempts_max, settings.login_lockout_min) == (3, 30.0)
+    assert server.audit_trail(None).iloc[-1][["who", "action"]].tolist() == ["pi", "settings changed"]
