@@ -587,8 +587,11 @@ def show_figure(fig, *, key: str, name: str, **kwargs):
 
 def footer(book: Any = None) -> None:
     """Version and lab book in use (password hidden)."""
-    from swimlab import __version__
+    from swimlab import __version__, auth
 
     st.sidebar.divider()
-    st.sidebar.caption(f"swimlab {__version__} · lab book: `{masked_url(book)}`")
+    if app_mode() == auth.LAB_SERVER and st.session_state.get("app_person") is None:
+        st.sidebar.caption(f"swimlab {__version__}")  # where the lab book lives is not for strangers
+    else:
+        st.sidebar.caption(f"swimlab {__version__} · lab book: `{masked_url(book)}`")
     st.sidebar.caption(identity_line())

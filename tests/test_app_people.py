@@ -136,6 +136,7 @@ def test_lab_server_shows_only_the_sign_in_page(server):
     assert at.title[0].value == "Sign in"
     assert _pages(at) == {"sign_in"}
     assert "lab-server mode · not signed in" in _footer(at)
+    assert "sqlite" not in _footer(at)  # where the lab book lives is not shown to strangers
     assert not at.sidebar.text_input  # no "your name" box to type anyone's name into
 
 
