@@ -66,6 +66,10 @@ if mode == auth.SINGLE_USER and isinstance(client_ip, str) and client_ip and not
     )
     st.stop()
 
+listening = st.get_option("server.address")
+if mode == auth.SINGLE_USER and listening and auth.binding_problem(mode, listening):
+    st.warning(auth.binding_problem(mode, listening), icon=":material/lock_open:")
+
 plain = common.plain_labbook()
 person = common.check_sign_in(plain) if mode == auth.LAB_SERVER else None
 

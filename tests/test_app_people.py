@@ -280,3 +280,17 @@ def test_an_admin_sets_the_lock_out_on_the_people_page(server):
     settings = server.get_lab_settings()
     assert (settings.login_attempts_max, settings.login_lockout_min) == (3, 30.0)
     assert server.audit_trail(None).iloc[-1][["who", "action"]].tolist() == ["pi", "settings changed"]
+
+
+def test_single_user_mode_warns_when_told_to_listen_beyond_this_computer(lab):
+    from streamlit import config
+
+    at = AppTest.from_file(str(ROOT / "app.py"), default_timeout=TIMEOUT)
+    old = config.get_option("server.address")
+    config.set_option("server.address", "0.0.0.0")
+    try:
+        at.run()
+    finally:
+        config.set_option("server.address", old)
+    assert "single-user mode asks for no password, but the server listens on 0.0.0.0" in _texts(at.warning)
+    assert at.title[0].value == "Lab book"  # connections from this computer are still served
