@@ -82,7 +82,6 @@ if mode == auth.LAB_SERVER and person is None:
     st.stop()
 
 pages = common.page_list(mode, person)
-pages["Trial"].append(st.Page("app_pages/protocols.py", title="Protocols", icon=":material/science:"))
 page = st.navigation(pages)
 
 try:

@@ -25,6 +25,7 @@ PAGE_FILES = {
     "trace": "app_pages/trace.py",
     "checks": "app_pages/checks.py",
     "results": "app_pages/results.py",
+    "protocols": "app_pages/protocols.py",
     "review": "app_pages/review.py",
     "care": "app_pages/care.py",
     "people": "app_pages/people.py",
@@ -268,6 +269,7 @@ def page_list(mode: str, person: Any) -> dict[str, list]:
         st.Page(PAGE_FILES["trace"], title="Oxygen trace", icon=":material/show_chart:"),
         st.Page(PAGE_FILES["checks"], title="Checks", icon=":material/rule:"),
         st.Page(PAGE_FILES["results"], title="Results", icon=":material/insights:"),
+        st.Page(PAGE_FILES["protocols"], title="Protocols", icon=":material/science:"),
     ]
     sign_off = []
     if mode == auth.SINGLE_USER or auth.allowed(person.role, auth.APPROVE):
