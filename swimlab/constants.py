@@ -3,7 +3,7 @@
 Coefficients of a published correlation are kept together as a tuple in the order of the source's
 equation. Values marked "from memory" were recalled rather than read from the source; each of them
 is checked in ``tests/`` against an independent reference (a general-purpose library or a
-published check value). Full references are in ``docs/refs/physics.md``.
+published check value). Full references are in ``docs/references.md``.
 """
 
 from __future__ import annotations

@@ -8,7 +8,7 @@ unit) and in J kg⁻¹ m⁻¹.
 Bad input raises :class:`~swimlab.errors.InputError` naming the argument and the value; a result
 that cannot be had from valid input (no fatigue time, too few speeds for a curve) comes back as
 a result whose value is ``None`` with flags from :mod:`swimlab.checks` saying what is missing.
-Sources are listed in ``docs/refs/performance.md``.
+Sources are listed in ``docs/references.md``.
 """
 
 from __future__ import annotations
@@ -926,7 +926,7 @@ def fit_speed_metabolism(
     intervals (Bates & Watts 1988, from memory), the other parameters refitted at each value;
     an interval that runs into a bound says so in ``ci_method``. Profile intervals were chosen
     over bootstrap percentiles because the latter under-cover with the few speeds of one fish
-    (measured in docs/refs/performance.md).
+    (measured in docs/references.md).
 
     *Bootstrap replicates.* With ``n_boot > 0``, residuals (leverage-adjusted, on the fitted
     scale; Davison & Hinkley 1997) or cases are resampled, seeded and deterministic, and each

@@ -23,7 +23,7 @@ with plotly and kaleido, which drives a Chromium (``BROWSER_PATH`` or ``chromium
 ``PATH``); when that fails, the figure's place holds a box saying why, and
 :attr:`Report.figure_problems` lists it.
 
-Sources are listed in ``docs/refs/report.md``.
+Sources are listed in ``docs/references.md``.
 """
 
 from __future__ import annotations

@@ -342,7 +342,7 @@ def test_interval_coverage_of_smr_and_power_exponent():
     # Acceptance (simulation with known truth): the true SMR (a) and exponent c lie inside their
     # 95 % intervals near 95 % of the time. Over these 100 seeded replicates (8 speeds × 3
     # phases, 5 % scatter) the measured coverage is a 0.91, c 0.95 (exponential a 0.94,
-    # b 0.93); over 1000 other replicates a 0.937, c 0.946 (docs/refs/performance.md).
+    # b 0.93); over 1000 other replicates a 0.937, c 0.946 (docs/references.md).
     # Binomial(100, 0.95) gives ≥ 88 hits with probability 0.9985.
     cover, spread, width = coverage("power", ("a", "c"), n_rep=100)
     for k in ("a", "c"):
@@ -358,7 +358,7 @@ def test_interval_coverage_of_smr_and_power_exponent():
 
 @pytest.mark.slow
 def test_coverage_study(capsys):
-    # The coverage study behind docs/refs/performance.md at a smaller size: 400 seeded
+    # The coverage study behind docs/references.md at a smaller size: 400 seeded
     # replicates of the power model, 8 speeds × 3 phases (the exponential's t interval is exact
     # and checked against statsmodels above). Binomial(400, 0.95) lies in [0.92, 0.98] with
     # probability 0.99. Prints the figures (run with -m slow -s).

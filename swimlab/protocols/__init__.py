@@ -17,7 +17,7 @@ expected, and ``flags`` raised through :func:`swimlab.checks.flag`.
 - :mod:`~swimlab.protocols.kinematics` — tail-beat frequency, stride length, Strouhal number,
   frequency–speed line, Bainbridge (1958) relation.
 
-Sources are listed in ``docs/refs/protocols.md``.
+Sources are listed in ``docs/references.md``.
 """
 
 from swimlab.protocols import endurance, gait, kinematics, ramp, recovery, repeat
