@@ -159,8 +159,16 @@ def analyse(
 
     if session.sensor is None:
         flags.append(checks.flag("SENSOR_CALIBRATION_MISSING", "No oxygen sensor calibration recorded."))
-    if len(session.fish) > 1 and len({f.chamber for f in session.fish}) < len(session.fish):
-        flags.append(checks.flag("GROUP_TRIAL", f"{len(session.fish)} fish share one respirometer."))
+    shared = sorted({f.chamber for f in session.fish if sum(g.chamber == f.chamber for g in session.fish) > 1})
+    if shared:
+        # Per-capita analysis of fish swum together is not built yet; using one fish's mass for
+        # the whole group's uptake would be silently wrong, so refuse it in words.
+        ids = [f.fish_id for f in session.fish if f.chamber in shared]
+        raise InputError(
+            f"fish {ids} share chamber(s) {shared}: several fish swum together in one respirometer "
+            "(a group trial) cannot be analysed yet — give each fish its own chamber and oxygen channel",
+            field="fish.chamber",
+        )
     if session.protocol.type in ("ramp", "endurance"):
         flags.append(checks.flag(
             "PROTOCOL_NOT_COMPARABLE",

@@ -219,3 +219,14 @@ def test_demo_struggling_trial_has_welfare_flags_first_and_a_kept_exclusion(demo
     assert not measure.loc[[14, 17], "used"].any()
     assert measure.drop(index=[14, 17]).query("step > 0 and o2_min_pct_air_sat > 80")["used"].all()
     assert result.result("BW26-T04", "smr") == pytest.approx(truth["mo2_params"][0], rel=0.10)
+
+
+def test_fish_sharing_a_chamber_are_refused_in_words(simulated):
+    # A group trial's uptake belongs to all its fish; analysing it with one fish's mass would be
+    # wrong, so it is refused until per-capita analysis exists.
+    _, session, raw = simulated
+    second = session.fish[0].model_copy(update={"fish_id": "F2"})
+    group = session.model_copy(update={"fish": [session.fish[0], second]})
+    with pytest.raises(InputError, match="share chamber") as info:
+        analyse(group, raw)
+    assert info.value.field == "fish.chamber"
