@@ -281,7 +281,12 @@ def _tobit_gradient(theta: np.ndarray, u: np.ndarray, y: np.ndarray, e: np.ndarr
     a, b, log_s = theta
     s = math.exp(log_s)
     z = (y - a - b * u) / s
-    hazard = np.exp(stats.norm.logpdf(z) - stats.norm.logsf(z))
+    # Inverse Mills ratio φ(z)/(1 − Φ(z)); far in the upper tail logsf underflows, and the
+    # ratio tends to z + 1/z (its asymptotic series), which is used there instead.
+    with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+        hazard = np.exp(stats.norm.logpdf(z) - stats.norm.logsf(z))
+        tail = z > 30.0
+        hazard = np.where(tail, z + 1.0 / np.where(tail, z, 1.0), hazard)
     d_mu = np.where(e, z, hazard) / s  # d ll / d mu for each fish
     d_logs = np.where(e, z**2 - 1.0, hazard * z)
     return -np.array([np.sum(d_mu), np.sum(d_mu * u), np.sum(d_logs)])
