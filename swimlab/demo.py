@@ -33,6 +33,7 @@ from swimlab.session import Session
 
 LAB = "Brackwater Station fish physiology group (invented for the demo)"
 STUDY = "BW-26 swimming energetics (invented demo study)"
+APPROVAL = "Brackwater Station animal-care committee, protocol BW-AC-2026-07 (invented for the demo)"
 
 
 @dataclass(frozen=True)
@@ -185,7 +186,8 @@ def build(trial: DemoTrial) -> tuple[Session, dict[str, bytes], dict[str, Any]]:
         },
         "conditions": {"acclimation_temperature_c": trial.temperature_c, "acclimation_days": 21,
                        "fasting_h": 48, "habituation_min": trial.rest_h * 60,
-                       "habituation_speed_cm_s": 5.0, "time_of_day": "08:00", "photoperiod": "12L:12D"},
+                       "habituation_speed_cm_s": 5.0, "time_of_day": "08:00", "photoperiod": "12L:12D",
+                       "animal_care_approval": APPROVAL},
         "sensor": {"sensor": "optical oxygen probe, channel A", "date": "2026-03-01",
                    "zero_point_pct": 0.0, "span_point_pct": 100.0, "temperature_c": trial.temperature_c,
                    "barometric_pressure_kpa": 101.3, "salinity": trial.salinity, "drift_check_pct": 99.6},
@@ -381,7 +383,8 @@ def _common(demo: ProtocolDemo, simulated: sim.SimulatedTrial, protocol: dict[st
                      "fatigue_criterion": FATIGUE, **protocol},
         "conditions": {"acclimation_temperature_c": demo.temperature_c, "acclimation_days": 21, "fasting_h": 48,
                        "habituation_min": 60, "habituation_speed_cm_s": 5.0, "time_of_day": "08:00",
-                       "photoperiod": "12L:12D", "treatment": demo.treatment},
+                       "photoperiod": "12L:12D", "treatment": demo.treatment,
+                       "animal_care_approval": APPROVAL},
         "sensor": {"sensor": "optical oxygen probe, tunnel 1", "date": "2026-03-01", "zero_point_pct": 0.0,
                    "span_point_pct": 100.0, "temperature_c": demo.temperature_c, "barometric_pressure_kpa": 101.3,
                    "salinity": 0.0, "drift_check_pct": 99.7},

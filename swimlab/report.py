@@ -1179,9 +1179,11 @@ def reporting_checklist(session: Session, analysis: Any) -> pd.DataFrame:
         "stated" if counts["total"] else "missing",
         "; ".join(f"{x.fish_id}: {f.phase_counts(x.fish_id)['used']} phases" for x in fish) if counts["total"] else "no analysis",
         "analysis.measure")
-    add(ARRIVE, "14", "Ethical statement", "Ethics committee and licence or protocol number", "missing",
-        "not recorded in a swimlab session; state the approving committee and protocol number in the manuscript",
-        "(no session field)")
+    approval = f.session.conditions.animal_care_approval.strip()
+    add(ARRIVE, "14", "Ethical statement", "Ethics committee and licence or protocol number",
+        "stated" if approval else "missing",
+        approval or "not recorded; enter the approving committee and protocol or licence number",
+        "conditions.animal_care_approval")
     add(ARRIVE, "16a", "Animal care and monitoring", "Steps taken to reduce pain, suffering and distress", "stated",
         f"oxygen floor {format_entered(st.oxygen_floor_pct_air_sat, '%')}, at most {format_entered(st.max_time_at_exhaustion_s, 's')} "
         f"at exhaustion, at most {format_entered(st.max_temperature_change_c, '°C')} change from acclimation",
@@ -1219,7 +1221,10 @@ def animal_care_statement(session: Session, analysis: Any) -> list[str]:
     lines = [
         ("Swim-tunnel trials are experiments on live animals. They must follow the protocol approved by the "
          "institution's animal-care committee and local law, and be run by people trained and licensed as those "
-         "rules require."),
+         "rules require."
+         + (f" This trial was recorded as covered by: {session.conditions.animal_care_approval.strip()}."
+            if session.conditions.animal_care_approval.strip()
+            else " No animal-care approval reference was recorded for this trial.")),
         (f"Welfare limits recorded for this session: oxygen floor {format_entered(st.oxygen_floor_pct_air_sat, '%')} air "
          f"saturation; at most {format_entered(st.max_time_at_exhaustion_s, 's')} held against the rear grid after fatigue "
          f"before the flow is reduced; at most {format_entered(st.max_temperature_change_c, '°C')} change from the "

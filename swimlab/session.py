@@ -187,6 +187,9 @@ class TrialConditions(_Model):
     time_of_day: str = ""
     photoperiod: str = ""
     treatment: str = Field("", description="Treatment or group label, for comparisons across sessions")
+    animal_care_approval: str = Field(
+        "", description="Animal-care committee and approved protocol or licence number covering the trial"
+    )
 
 
 class SensorCalibration(_Model):

@@ -175,6 +175,8 @@ SECTIONS: dict[str, GridSection] = {
             _C("time_of_day", "Time of day", "text"),
             _C("photoperiod", "Photoperiod", "text", "e.g. 12L:12D"),
             _C("treatment", "Treatment or group", "text", "For comparisons across sessions."),
+            _C("animal_care_approval", "Animal-care approval", "text",
+               "Committee and approved protocol or licence number covering this trial."),
         )),
         GridSection("sensor", "Oxygen sensor calibration", "sensor", sm.SensorCalibration, False, (
             _C("sensor", "Sensor", "text"),

@@ -299,7 +299,7 @@ def test_checklist_has_every_item_with_a_valid_state(trial):
     assert list(cl["number"]) == ITEM_NUMBERS
     assert set(cl["state"]) <= set(report.STATES)
     assert (cl["where"].str.len() > 0).all()
-    # the scenario records everything a session can hold; the ethics approval has no field
+    # the scenario records everything a session can hold except the animal-care approval
     not_stated = cl.loc[cl["state"] != "stated", "number"].tolist()
     assert not_stated == ["14"]
 
@@ -730,3 +730,20 @@ def test_study_report_endurance_survival_and_repeat_pairs(protocol_demos):
     trout = "Oncorhynchus mykiss (hatchery)"
     assert spread.loc[(trout, "ucrit"), "n_fish"] == 1
     assert external_urls(rep.html(figures=False)) == []
+
+
+def test_animal_care_approval_fills_arrive_item_14():
+    # ARRIVE 2.0 item 14 (Percie du Sert et al. 2020): the approving committee and protocol number.
+    from swimlab.io.bundle import read_bundle
+    from swimlab.report import reporting_checklist
+
+    demo = Path(__file__).resolve().parents[1] / "demo_sessions" / "bw26-t03-large-fish"
+    contents = read_bundle(demo)
+    session = contents.session
+    analysis = analyse(session, contents.raw_files, n_boot=50)
+    items = reporting_checklist(session, analysis).set_index("number")
+    assert items.loc["14", "state"] == "stated"
+    assert "BW-AC-2026-07" in items.loc["14", "detail"]
+    bare = session.model_copy(update={"conditions": session.conditions.model_copy(update={"animal_care_approval": ""})})
+    items = reporting_checklist(bare, analysis).set_index("number")
+    assert items.loc["14", "state"] == "missing"
