@@ -24,6 +24,7 @@ from browser_support import (
     stop_app,
     typical_session,
 )
+from playwright.sync_api import expect
 from test_browser import SHOTS, VIEWPORT, goto_page, idle, shot, text_of
 
 pytestmark = pytest.mark.browser
@@ -144,7 +145,8 @@ def test_two_people_two_contexts_and_cookies_that_sign_nobody_in(lab_server):
             assert "signed in as Ben Okafor (ben) · reviewer · by password" in _sidebar(ben)
             goto_page(ben, "Review")
             assert "Kestrel Bay KB-03 step test" in text_of(ben)
-            assert ben.get_by_role("textbox", name="Reviewer").input_value() == "Ben Okafor (ben)"
+            # The reviewer box is filled with the signed-in identity (wait for the rerun to land).
+            expect(ben.get_by_role("textbox", name="Reviewer")).to_have_value("Ben Okafor (ben)", timeout=20_000)
             ben.get_by_role("textbox", name="Comment").fill("Checked the trace and the fatigue time.")
             ben.get_by_role("button", name="Approve").click()
             idle(ben)
