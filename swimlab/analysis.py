@@ -33,13 +33,14 @@ from swimlab import (
     water,
 )
 from swimlab._tables import json_records
+from swimlab.constants import CM_PER_M, G_PER_KG
 from swimlab.errors import InputError, OutOfRangeError
 from swimlab.io import logger
 from swimlab.session import Session, step_table
 from swimlab.settings import LabSettings
 
-CM = 0.01  # metres per centimetre
-G = 1e-3  # kilograms per gram
+CM = 1.0 / CM_PER_M  # metres per centimetre
+G = 1.0 / G_PER_KG  # kilograms per gram
 
 
 @dataclass(frozen=True)

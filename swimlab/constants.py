@@ -43,6 +43,15 @@ absolute-salinity anomaly)."""
 G_PER_KG = 1.0e3
 """Grams in one kilogram. [g/kg] Definition."""
 
+SECONDS_PER_HOUR = 3600.0
+"""Seconds in one hour. [s/h] Definition."""
+
+M_PER_KM = 1.0e3
+"""Metres in one kilometre. [m/km] Definition."""
+
+CM_PER_M = 1.0e2
+"""Centimetres in one metre. [cm/m] Definition."""
+
 MOLAR_MASS_O2 = 31.9988
 """Molar mass of molecular oxygen, 2 × 15.9994 g/mol. [g/mol] IUPAC standard atomic weight of
 oxygen 15.9994 (IUPAC 1995, from memory); equals 31.9988 mg/mmol."""

@@ -25,6 +25,7 @@ from scipy import optimize, stats
 
 from swimlab import _validate
 from swimlab.checks import flag
+from swimlab.constants import M_PER_KM, SECONDS_PER_HOUR
 from swimlab.errors import InputError
 from swimlab.settings import DEFAULT_SETTINGS, LabSettings
 
@@ -58,10 +59,8 @@ __all__ = [
 
 # --- unit factors (definitions) ---------------------------------------------------------------
 
-_S_PER_H = 3600.0
-"""Seconds in one hour. [s/h] Definition."""
-_M_PER_KM = 1000.0
-"""Metres in one kilometre. [m/km] Definition."""
+_S_PER_H = SECONDS_PER_HOUR
+_M_PER_KM = M_PER_KM
 _KM_H_PER_M_S = _S_PER_H / _M_PER_KM
 """km/h in one m/s (3.6). [(km/h)/(m/s)] Definition."""
 

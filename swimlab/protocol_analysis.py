@@ -52,6 +52,7 @@ from scipy import stats
 
 from swimlab import checks, flume
 from swimlab._tables import json_records
+from swimlab.constants import CM_PER_M
 from swimlab.errors import InputError
 from swimlab.protocols import endurance, gait, kinematics, ramp, recovery, repeat
 from swimlab.session import PROTOCOL_LABELS, RECOVERY_BASELINES, Session, step_table
@@ -74,7 +75,7 @@ __all__ = [
     "repeat_pairs",
 ]
 
-CM = 0.01
+CM = 1.0 / CM_PER_M  # metres per centimetre
 """Metres per centimetre. [m/cm] Definition."""
 S_PER_MIN = 60.0
 """Seconds per minute. [s/min] Definition."""

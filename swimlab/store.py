@@ -49,7 +49,6 @@ Each public method that writes runs in exactly one transaction: it commits whole
 from __future__ import annotations
 
 import datetime as dt
-import hashlib
 import json
 import os
 import tomllib
@@ -65,6 +64,7 @@ from sqlalchemy.exc import ArgumentError, DBAPIError, NoSuchModuleError
 
 from swimlab import auth
 from swimlab.errors import ConflictError, InputError, PermissionDeniedError
+from swimlab.io.checksum import sha256_hex
 from swimlab.session import STATUSES, Session, validate_session
 from swimlab.settings import LabSettings
 
@@ -554,8 +554,6 @@ def _dumps(value: Any) -> str:
     return json.dumps(value, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
 
 
-def _sha256(data: bytes) -> str:
-    return hashlib.sha256(data).hexdigest()
 
 
 def _person(value: Any, field: str = "who") -> str:
@@ -825,7 +823,7 @@ class LabBook:
         names = {ref.sha256: ref.name for ref in session.raw_files}
         for sha, data in (raw_files or {}).items():
             data = _as_bytes(data, f"raw_files.{sha}")
-            actual = _sha256(data)
+            actual = sha256_hex(data)
             if actual != sha:
                 raise InputError(
                     f"the bytes have checksum {actual}, not the one they are given under; "
@@ -1460,7 +1458,7 @@ class LabBook:
         self, data: bytes, name: str, *, sha256: str | None, actor: _Actor | None
     ) -> str:
         data = _as_bytes(data, "data")
-        actual = _sha256(data)
+        actual = sha256_hex(data)
         if sha256 is not None and actual != sha256:
             raise InputError(
                 f"the bytes have checksum {actual}, not {sha256}; nothing was stored",
@@ -1483,7 +1481,7 @@ class LabBook:
                 f"no raw file with checksum {sha256!r} in the lab book", field="sha256"
             )
         data = bytes(data)
-        if _sha256(data) != sha256:  # pragma: no cover - the database returned other bytes
+        if sha256_hex(data) != sha256:  # pragma: no cover - the database returned other bytes
             raise InputError(
                 f"the stored raw file {sha256} is damaged (checksum differs)", field="sha256"
             )

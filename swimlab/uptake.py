@@ -21,7 +21,7 @@ import numpy as np
 import pandas as pd
 
 from swimlab import _validate, checks
-from swimlab.constants import G_PER_KG, MOLAR_MASS_O2
+from swimlab.constants import G_PER_KG, MOLAR_MASS_O2, SECONDS_PER_HOUR
 from swimlab.errors import InputError
 from swimlab.settings import DEFAULT_SETTINGS, LabSettings
 
@@ -39,8 +39,6 @@ __all__ = [
     "umol_g_h_from_mg_kg_h",
 ]
 
-SECONDS_PER_HOUR = 3600.0
-"""Seconds in one hour. [s/h] Definition."""
 
 LITRES_PER_M3 = 1000.0
 """Litres in one cubic metre. [L/m³] Definition."""

@@ -137,3 +137,48 @@ def labbook(db_url):
     book = LabBook.open(db_url)
     yield book
     book.close()
+
+
+# Faster lab books for the permission and sign-in tests: the same two backends, but SQLite lives
+# in memory-backed /dev/shm where there is one (durability is tested in test_store.py, not here)
+# and PostgreSQL keeps one migrated schema per module, emptied before each test. A test module
+# imports both fixtures below and names ``quick_labbook`` where it needs a lab book.
+_DATA_TABLES = "sessions, session_versions, raw_files, session_raw_files, audit, people"
+
+
+@pytest.fixture(scope="module")
+def postgres_quick_book():
+    """One migrated PostgreSQL lab book per test module."""
+    import pg_server
+
+    from swimlab.store import LabBook
+
+    url = pg_server.fresh_database(postgres_or_skip())
+    book = LabBook.open(url)
+    yield book
+    book.close()
+    pg_server.drop_database(url)
+
+
+@pytest.fixture(params=BACKENDS)
+def quick_labbook(request, tmp_path):
+    """An empty lab book on each backend, made fast (see above)."""
+    import shutil
+    import tempfile
+
+    from swimlab.store import LabBook
+
+    if request.param == "postgresql":
+        book = request.getfixturevalue("postgres_quick_book")
+        with book._engine.begin() as conn:
+            conn.exec_driver_sql(f"TRUNCATE {_DATA_TABLES} RESTART IDENTITY CASCADE")
+            conn.exec_driver_sql("UPDATE lab_settings SET settings = '{}', mappings = '{}', single_user_name = ''")
+        yield book
+        return
+    shm = "/dev/shm"
+    folder = tempfile.mkdtemp(dir=shm) if os.access(shm, os.W_OK) else str(tmp_path)
+    book = LabBook.open(f"sqlite:///{folder}/labbook.sqlite")
+    yield book
+    book.close()
+    if folder != str(tmp_path):
+        shutil.rmtree(folder, ignore_errors=True)

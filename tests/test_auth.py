@@ -11,14 +11,12 @@ import datetime as dt
 import hashlib
 import io
 import json
-import os
 import re
-import shutil
-import tempfile
 
 import pytest
-import store_fixtures
-from store_fixtures import make_session
+
+# The lab books are store_fixtures.quick_labbook (SQLite and PostgreSQL, made fast).
+from store_fixtures import make_session, postgres_quick_book, quick_labbook  # noqa: F401  (fixtures)
 
 from swimlab import auth
 from swimlab.cli import main
@@ -26,39 +24,10 @@ from swimlab.errors import InputError, PermissionDeniedError
 from swimlab.settings import LabSettings
 from swimlab.store import Account, LabBook
 
-# Lab books for these tests: the same two backends as tests/test_store.py, made faster. SQLite
-# lives in memory-backed /dev/shm where there is one (durability is tested in test_store.py, not
-# here); PostgreSQL keeps one migrated schema per module, emptied before each test.
-_DATA_TABLES = "sessions, session_versions, raw_files, session_raw_files, audit, people"
 
-
-@pytest.fixture(scope="module")
-def _postgres_book():
-    import pg_server
-
-    url = pg_server.fresh_database(store_fixtures.postgres_or_skip())
-    book = LabBook.open(url)
-    yield book
-    book.close()
-    pg_server.drop_database(url)
-
-
-@pytest.fixture(params=store_fixtures.BACKENDS)
-def labbook(request, tmp_path):
-    if request.param == "postgresql":
-        book = request.getfixturevalue("_postgres_book")
-        with book._engine.begin() as conn:
-            conn.exec_driver_sql(f"TRUNCATE {_DATA_TABLES} RESTART IDENTITY CASCADE")
-            conn.exec_driver_sql("UPDATE lab_settings SET settings = '{}', mappings = '{}', single_user_name = ''")
-        yield book
-        return
-    shm = "/dev/shm"
-    folder = tempfile.mkdtemp(dir=shm) if os.access(shm, os.W_OK) else str(tmp_path)
-    book = LabBook.open(f"sqlite:///{folder}/labbook.sqlite")
-    yield book
-    book.close()
-    if folder != str(tmp_path):
-        shutil.rmtree(folder, ignore_errors=True)
+@pytest.fixture
+def labbook(quick_labbook):  # noqa: F811  (the fixture, by its name)
+    return quick_labbook
 
 CHEAP = auth.ScryptParameters(n=2**10)
 """Cheap scrypt parameters for tests only (about 4 ms a hash instead of 0.6 s)."""

@@ -10,52 +10,20 @@ person, and that a refused one raises PermissionDeniedError and changes nothing 
 
 from __future__ import annotations
 
-import os
-import shutil
-import tempfile
-
 import pytest
 import sqlalchemy as sa
-import store_fixtures
-from store_fixtures import TRACE, edited, make_session
+
+# The lab books are store_fixtures.quick_labbook (SQLite and PostgreSQL, made fast).
+from store_fixtures import TRACE, edited, make_session, postgres_quick_book, quick_labbook  # noqa: F401  (fixtures)
 
 from swimlab import auth
 from swimlab.errors import InputError, PermissionDeniedError
 from swimlab.store import ActingLabBook, LabBook
 
-# Lab books for these tests: the same two backends as tests/test_store.py, made faster. SQLite
-# lives in memory-backed /dev/shm where there is one (durability is tested in test_store.py, not
-# here); PostgreSQL keeps one migrated schema per module, emptied before each test.
-_DATA_TABLES = "sessions, session_versions, raw_files, session_raw_files, audit, people"
 
-
-@pytest.fixture(scope="module")
-def _postgres_book():
-    import pg_server
-
-    url = pg_server.fresh_database(store_fixtures.postgres_or_skip())
-    book = LabBook.open(url)
-    yield book
-    book.close()
-    pg_server.drop_database(url)
-
-
-@pytest.fixture(params=store_fixtures.BACKENDS)
-def labbook(request, tmp_path):
-    if request.param == "postgresql":
-        book = request.getfixturevalue("_postgres_book")
-        with book._engine.begin() as conn:
-            conn.exec_driver_sql(f"TRUNCATE {_DATA_TABLES} RESTART IDENTITY CASCADE")
-            conn.exec_driver_sql("UPDATE lab_settings SET settings = '{}', mappings = '{}', single_user_name = ''")
-        yield book
-        return
-    shm = "/dev/shm"
-    folder = tempfile.mkdtemp(dir=shm) if os.access(shm, os.W_OK) else str(tmp_path)
-    book = LabBook.open(f"sqlite:///{folder}/labbook.sqlite")
-    yield book
-    book.close()
-    if folder != str(tmp_path):
-        shutil.rmtree(folder, ignore_errors=True)
+@pytest.fixture
+def labbook(quick_labbook):  # noqa: F811  (the fixture, by its name)
+    return quick_labbook
 
 PASSWORD = "flush, wait and measure"
 

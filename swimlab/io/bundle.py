@@ -26,7 +26,6 @@ from __future__ import annotations
 
 import csv
 import datetime as dt
-import hashlib
 import io
 import json
 import os
@@ -43,6 +42,7 @@ from typing import Any
 from pydantic import BaseModel
 
 from swimlab.errors import InputError
+from swimlab.io.checksum import sha256_hex
 from swimlab.session import (
     Blank,
     Event,
@@ -338,8 +338,6 @@ def upgrade_document(doc: dict[str, Any]) -> tuple[dict[str, Any], int, list[str
 # --------------------------------------------------------------------------------------------
 
 
-def _sha256(data: bytes) -> str:
-    return hashlib.sha256(data).hexdigest()
 
 
 def _cell(value: Any) -> str:
@@ -417,9 +415,9 @@ def bundle_files(
                 "or leave it out",
                 field=f"raw_files.{sha}",
             )
-        if _sha256(data) != sha:
+        if sha256_hex(data) != sha:
             raise InputError(
-                f"the bytes given have checksum {_sha256(data)}, not the key they are given under",
+                f"the bytes given have checksum {sha256_hex(data)}, not the key they are given under",
                 field=f"raw_files.{sha}",
             )
     files: dict[str, bytes] = {}
@@ -428,7 +426,7 @@ def bundle_files(
         data = table_text(document, table).encode("utf-8")
         files[table.name] = data
         manifest.append(
-            {"path": table.name, "sha256": _sha256(data), "bytes": len(data), "role": "table"}
+            {"path": table.name, "sha256": sha256_hex(data), "bytes": len(data), "role": "table"}
         )
     paths = _raw_paths(session)
     roles = {}
@@ -845,7 +843,7 @@ def read_bundle(path: str | os.PathLike) -> BundleContents:
                     file=name,
                     field=f"files.{i}.bytes",
                 )
-            actual = _sha256(data)
+            actual = sha256_hex(data)
             if actual != entry["sha256"]:
                 raise InputError(
                     f"has checksum {actual}; session.json ({f'files.{i}.sha256'}) says "

@@ -35,7 +35,9 @@ import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.csv as pacsv
 
+from swimlab import oxygen
 from swimlab.errors import InputError
+from swimlab.io.checksum import sha256_hex
 from swimlab.oxygen import UNITS
 
 __all__ = [
@@ -106,20 +108,21 @@ DEFAULT_TEMPERATURE_ERROR_CODES = (-99.0, -300.0, -999.0, -9999.0, 9999.0, 99999
 """As :data:`DEFAULT_OXYGEN_ERROR_CODES`, for temperature; -1 is left out because -1 °C is a
 real seawater temperature. Common practice."""
 
+def _round_up(value: float, digits: int = 3) -> float:
+    scale = 10.0 ** (math.floor(math.log10(value)) - digits + 1)
+    return round(math.ceil(value / scale) * scale, 9)
+
+
 OXYGEN_RANGES: dict[str, tuple[float, float]] = {
-    "% air saturation": (0.0, 300.0),
-    "mg/L": (0.0, 45.0),
-    "µmol/L": (0.0, 1400.0),
-    "kPa": (0.0, 65.0),
-    "hPa": (0.0, 650.0),
-    "mmHg": (0.0, 490.0),
+    unit: (0.0, _round_up(float(oxygen.convert(oxygen.MAX_PERCENT_AIR_SATURATION, oxygen.PERCENT_AIR_SATURATION,
+                                                unit, temperature=0.0))))
+    for unit in UNITS
 }
-"""Readings a working oxygen sensor can give in each unit, [low, high]. The high ends are 300 %
-air saturation (hyperoxia well beyond what fish trials use) expressed in each unit for fresh
-water at 0 °C and 101.325 kPa, where oxygen is most soluble: 3 × 14.6 mg/L, 3 × 457 µmol/L
-(Garcia & Gordon 1992 solubility, checked in the tests against ``gsw.O2sol_SP_pt``) and
-3 × 21.1 kPa of oxygen partial pressure (0.20946 mole fraction of O2 in dry air times the
-pressure less water vapour), rounded up. Negative readings are impossible in every unit."""
+"""Readings a working oxygen sensor can give in each unit, [low, high]. The high end is
+:data:`swimlab.oxygen.MAX_PERCENT_AIR_SATURATION` (300 % air saturation, hyperoxia well beyond
+what fish trials use) converted by :func:`swimlab.oxygen.convert` for fresh water at 0 °C and
+101.325 kPa, where oxygen is most soluble, rounded up to three significant figures. Negative
+readings are impossible in every unit."""
 
 TEMPERATURE_RANGE_C = (-3.0, 45.0)
 """Water temperatures a swim-tunnel trial can run at. [°C] Common practice: just below the
@@ -152,9 +155,6 @@ _ARROW_FALSE = sorted({v for s in _PUMP_FALSE for v in (s, s.upper(), s.capitali
 # --- checksum and fingerprint -----------------------------------------------------------------
 
 
-def sha256_hex(data: bytes) -> str:
-    """Return the SHA-256 checksum of ``data`` as 64 lowercase hex digits."""
-    return hashlib.sha256(data).hexdigest()
 
 
 def _normalise_name(text: str) -> str:
