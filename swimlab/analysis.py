@@ -148,7 +148,7 @@ def analyse(
     flags: list[dict] = []
 
     water_props = _water(session, flags)
-    fish_table, section_area = _fish_geometry(session, settings, water_props, flags)
+    fish_table, section_area = _fish_geometry(session, settings, flags)
     calibration = _calibration(session, flags)
 
     phases = pd.DataFrame(columns=trace.PHASE_COLUMNS)
@@ -201,11 +201,10 @@ def analyse(
 
     steps_sched = pd.DataFrame(step_table(session), columns=["step", "start_s", "end_s", "set_speed_m_s"])
     measure = _assign_steps(measure, steps_sched, session)
-    steps = _steps(session, settings, fish_table, steps_sched, measure, water_props, section_area, calibration, flags)
+    steps = _steps(session, steps_sched, measure, water_props, section_area, calibration, flags)
     sample_interval_s = _sample_interval(traces)
     results, fits, ucrits, steps = _performance(
-        session, settings, fish_table, steps_sched, steps, measure, windows, water_props, flags, n_boot, seed,
-        sample_interval_s,
+        session, settings, steps_sched, steps, measure, windows, flags, n_boot, seed, sample_interval_s,
     )
 
     base = Analysis(
@@ -259,7 +258,7 @@ def _section_area(session: Session) -> float:
     return float(flume.section_area("rectangular", width=f.section_width_cm * CM, height=f.section_height_cm * CM))
 
 
-def _fish_geometry(session, settings, water_props, flags):
+def _fish_geometry(session, settings, flags):
     area = _section_area(session)
     rows = []
     for fish in session.fish:
@@ -451,7 +450,7 @@ def _assign_steps(measure: pd.DataFrame, steps_sched: pd.DataFrame, session: Ses
     return measure.assign(step=step.astype(int))
 
 
-def _steps(session, settings, fish_table, steps_sched, measure, water_props, section_area, calibration, flags):
+def _steps(session, steps_sched, measure, water_props, section_area, calibration, flags):
     columns = [
         "fish_id", "step", "start_s", "end_s", "set_speed_cm_s", "corrected_speed_cm_s", "speed_bl_s",
         "reynolds", "flow_regime", "drag_mn", "drag_power_mw", "mo2_mg_kg_h", "mo2_sd_mg_kg_h",
@@ -464,9 +463,7 @@ def _steps(session, settings, fish_table, steps_sched, measure, water_props, sec
     rho = water_props.get("density_kg_m3")
     set_speed = steps_sched["set_speed_m_s"].to_numpy()
     if calibration is not None:
-        outside = ~np.asarray(calibration.in_range_speed(set_speed)) if hasattr(calibration, "in_range_speed") else (
-            (set_speed < calibration.speed_min) | (set_speed > calibration.speed_max)
-        )
+        outside = (set_speed < calibration.speed_min) | (set_speed > calibration.speed_max)
         for number in steps_sched["step"].to_numpy()[outside]:
             flags.append(checks.flag(
                 "SPEED_OUTSIDE_CALIBRATION",
@@ -520,8 +517,7 @@ def _steps(session, settings, fish_table, steps_sched, measure, water_props, sec
     return pd.DataFrame(rows, columns=columns)
 
 
-def _performance(session, settings, fish_table, steps_sched, steps, measure, windows, water_props, flags, n_boot, seed,
-                 sample_interval_s):
+def _performance(session, settings, steps_sched, steps, measure, windows, flags, n_boot, seed, sample_interval_s):
     result_rows: list[dict] = []
     fits: dict[str, Any] = {}
     ucrits: dict[str, dict[str, Any]] = {}

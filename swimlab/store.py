@@ -577,9 +577,6 @@ def _text(value: Any, field: str, *, required: bool, min_length: int = 1) -> str
     return value
 
 
-def _same_person(a: str, b: str) -> bool:
-    return bool(a.strip()) and a.strip().casefold() == b.strip().casefold()
-
 
 @dataclass(frozen=True)
 class _Actor:

@@ -1671,10 +1671,3 @@ def _clean_values(col: str, cells: _Cells, kept: np.ndarray, all_kept: bool,
                      [f"{v:g}" for v in values[idx[code]]], "value set missing")
     values[idx] = np.nan
     return values
-
-
-def _line_of_row(row: int, kept: np.ndarray, row_lines: np.ndarray) -> int | None:
-    pos = int(np.searchsorted(kept, row))
-    if pos < kept.size and kept[pos] == row:
-        return int(row_lines[pos])
-    return None
