@@ -1,17 +1,24 @@
 """Benchmark: a 72-hour, 8-channel, 1 Hz trial from file bytes to MO2.
 
-Run:  /work/venv/bin/python benchmarks/bench_trace.py [--hours 72] [--channels 8] [--repeats 5]
+Run:  .venv/bin/python benchmarks/bench_trace.py [--hours 72] [--channels 8] [--repeats 5]
 
-Simulates the trial with :func:`swimlab.sim.simulate_trial`, then prints the median of
-``--repeats`` runs of
+Simulates the trial with :func:`swimlab.sim.simulate_trial`, then times, in ``--repeats``
+interleaved rounds (every step once per round, so that load from other work on the machine falls
+on all steps alike), and prints the median over rounds of
 
-- the bare pandas parse of the CSV bytes (the faster of the C and pyarrow engines),
-- the swimlab import (:func:`swimlab.io.logger.read_logger`),
-- the analysis steps: unit conversion, phases from the pump, slopes, MO2 (background and
-  uptake), and the phase flags and steepest windows,
+- the bare pandas parse of the CSV bytes with the C and the pyarrow engine (the faster is the
+  yardstick),
+- the swimlab import (:func:`swimlab.io.logger.read_logger`, mapping guessed), and apart from it
+  the SHA-256 of the raw bytes (computed once, where a raw file is kept: the lab book, a bundle
+  or the app's upload; an analysis reads the file by that checksum and does not hash it again),
+- the analysis steps: unit conversion, phases from the pump, slopes, MO2 (background and uptake),
+  and, beyond the target's analysis, the phase flags and the steepest 60 s windows (for MMR),
+- import + analysis run end to end (file bytes to the MO2 table), and the same with flags and
+  windows,
 
-their ratios to the bare parse, and the peak memory of one import + analysis (tracemalloc) and of
-the process (resource.getrusage). Targets: phases + slopes + MO2 < 0.5 × bare parse;
+their ratios to the bare parse (ratio of medians, and the median of each round's own ratio), the
+process CPU time of each step, and the peak memory of one import + analysis (tracemalloc) and of
+the process (resource.getrusage). Targets (issue 3): phases + slopes + MO2 < 0.5 × bare parse;
 import + analysis < 1.5 × bare parse; peak memory < 1 GB.
 """
 
@@ -33,24 +40,17 @@ import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 
 from swimlab import trace, uptake  # noqa: E402
+from swimlab.io.checksum import sha256_hex  # noqa: E402
+from swimlab.io.logger import read_logger  # noqa: E402
 from swimlab.sim import simulate_trial  # noqa: E402
 
-CPU: dict[str, float] = {}
-"""Median process CPU time of each timed step (less sensitive than wall time to other load on a
-shared machine; a multi-threaded step, such as the pyarrow parse, adds the time of its threads)."""
 
-
-def _median_time(fn, repeats: int, name: str = "") -> tuple[float, object]:
-    times, cpu, result = [], [], None
-    for _ in range(repeats):
-        gc.collect()
-        start, start_cpu = time.perf_counter(), time.process_time()
-        result = fn()
-        times.append(time.perf_counter() - start)
-        cpu.append(time.process_time() - start_cpu)
-    if name:
-        CPU[name] = statistics.median(cpu)
-    return statistics.median(times), result
+def _timed(fn) -> tuple[float, float, object]:
+    """Wall and process CPU seconds of one call (a multi-threaded step adds its threads' CPU)."""
+    gc.collect()
+    start, start_cpu = time.perf_counter(), time.process_time()
+    result = fn()
+    return time.perf_counter() - start, time.process_time() - start_cpu, result
 
 
 def main() -> None:
@@ -73,65 +73,69 @@ def main() -> None:
     print(f"simulated {trial.time_s.size:,} readings x {len(channels)} channels "
           f"({len(data) / 1e6:.1f} MB CSV) in {time.perf_counter() - t0:.1f} s")
 
-    parse = {}
-    for engine in ("c", "pyarrow"):
-        parse[engine], _ = _median_time(lambda e=engine: pd.read_csv(io.BytesIO(data), engine=e), args.repeats,
-                                         f"parse_{engine}")
-    bare_engine = min(parse, key=parse.get)
-    bare = parse[bare_engine]
+    def parse(engine: str):
+        return pd.read_csv(io.BytesIO(data), engine=engine)
 
-    try:
-        from swimlab.io.logger import read_logger
-    except ImportError:  # the reader is another module; without it, time the analysis alone
-        read_logger = None
+    def do_import():
+        return read_logger(data, name="bench.csv")
 
-    if read_logger is not None:
-        t_import, logged = _median_time(lambda: read_logger(data, name="bench.csv"), args.repeats, "import")
-        time_s, oxy, temps, pump, unit = (logged.time_s, logged.oxygen, logged.temperature_c, logged.pump,
-                                          logged.oxygen_unit)
-    else:
-        t_import = float("nan")
-        time_s, oxy, temps, pump, unit = (trial.time_s, trial.oxygen_pct, trial.temperature_c, trial.pump,
-                                          "% air saturation")
+    def analysis(logged, *, extra: bool):
+        ts, ox, tc = logged.time_s, logged.oxygen, logged.temperature_c
+        conc = trace.concentration_from_trace(ox, logged.oxygen_unit, tc, truth.salinity, truth.pressure_pa)
+        phases = trace.phases_from_pump(ts, logged.pump, truth.cycle["wait_s"])
+        slopes = trace.fit_slopes(ts, conc, phases, temperature_c=tc, oxygen_pct=ox)
+        table, _ = uptake.phase_uptake(slopes, chambers=truth.chambers, blanks=list(truth.blanks),
+                                       background_method="exponential")
+        if extra:
+            trace.phase_flags(slopes, phases, time_s=ts, oxygen_pct=ox, temperature_c=tc)
+            trace.steepest_window_slopes(ts, conc, phases, 60.0)
+        return table
 
-    def convert():
-        return trace.concentration_from_trace(oxy, unit, temps, truth.salinity, truth.pressure_pa)
+    logged = do_import()
+    time_s, oxy, temps = logged.time_s, logged.oxygen, logged.temperature_c
+    conc = trace.concentration_from_trace(oxy, logged.oxygen_unit, temps, truth.salinity, truth.pressure_pa)
+    phases = trace.phases_from_pump(time_s, logged.pump, truth.cycle["wait_s"])
+    slopes = trace.fit_slopes(time_s, conc, phases, temperature_c=temps, oxygen_pct=oxy)
 
-    t_conv, conc = _median_time(convert, args.repeats, "conv")
-    t_phases, phases = _median_time(lambda: trace.phases_from_pump(time_s, pump, truth.cycle["wait_s"]),
-                                    args.repeats, "phases")
-    t_slopes, slopes = _median_time(
-        lambda: trace.fit_slopes(time_s, conc, phases, temperature_c=temps, oxygen_pct=oxy), args.repeats,
-        "slopes")
-    t_mo2, (table, _) = _median_time(
-        lambda: uptake.phase_uptake(slopes, chambers=truth.chambers, blanks=list(truth.blanks),
-                                    background_method="exponential"), args.repeats, "mo2")
-    t_flags, flags = _median_time(
-        lambda: trace.phase_flags(slopes, phases, time_s=time_s, oxygen_pct=oxy, temperature_c=temps),
-        args.repeats, "flags")
-    t_windows, _ = _median_time(lambda: trace.steepest_window_slopes(time_s, conc, phases, 60.0), args.repeats,
-                                "windows")
+    steps = {
+        "parse_c": lambda: parse("c"),
+        "parse_pyarrow": lambda: parse("pyarrow"),
+        "import": do_import,
+        "sha256": lambda: sha256_hex(data),
+        "conv": lambda: trace.concentration_from_trace(oxy, logged.oxygen_unit, temps, truth.salinity,
+                                                       truth.pressure_pa),
+        "phases": lambda: trace.phases_from_pump(time_s, logged.pump, truth.cycle["wait_s"]),
+        "slopes": lambda: trace.fit_slopes(time_s, conc, phases, temperature_c=temps, oxygen_pct=oxy),
+        "mo2": lambda: uptake.phase_uptake(slopes, chambers=truth.chambers, blanks=list(truth.blanks),
+                                           background_method="exponential"),
+        "flags": lambda: trace.phase_flags(slopes, phases, time_s=time_s, oxygen_pct=oxy, temperature_c=temps),
+        "windows": lambda: trace.steepest_window_slopes(time_s, conc, phases, 60.0),
+        "end_to_end": lambda: analysis(do_import(), extra=False),
+        "end_to_end_extra": lambda: analysis(do_import(), extra=True),
+    }
+    wall: dict[str, list[float]] = {k: [] for k in steps}
+    cpu: dict[str, list[float]] = {k: [] for k in steps}
+    table = None
+    for _ in range(args.repeats):
+        for key, fn in steps.items():
+            w, c, result = _timed(fn)
+            wall[key].append(w)
+            cpu[key].append(c)
+            if key == "end_to_end":
+                table = result
+    per_round_bare = [min(a, b) for a, b in zip(wall["parse_c"], wall["parse_pyarrow"], strict=True)]
+    med = {k: statistics.median(v) for k, v in wall.items()}
+    med_cpu = {k: statistics.median(v) for k, v in cpu.items()}
+    bare_engine = "c" if med["parse_c"] <= med["parse_pyarrow"] else "pyarrow"
+    bare = med[f"parse_{bare_engine}"]
+    c_bare = min(med_cpu["parse_c"], med_cpu["parse_pyarrow"])
 
-    core = t_conv + t_phases + t_slopes + t_mo2
-    analysis = core + t_flags + t_windows
-    total = (t_import if read_logger is not None else 0.0) + analysis
-
-    def full():
-        if read_logger is not None:
-            lg = read_logger(data, name="bench.csv")
-            ts, ox, tc, pu, un = lg.time_s, lg.oxygen, lg.temperature_c, lg.pump, lg.oxygen_unit
-        else:
-            ts, ox, tc, pu, un = time_s, oxy, temps, pump, unit
-        cc = trace.concentration_from_trace(ox, un, tc, truth.salinity, truth.pressure_pa)
-        ph = trace.phases_from_pump(ts, pu, truth.cycle["wait_s"])
-        sl = trace.fit_slopes(ts, cc, ph, temperature_c=tc, oxygen_pct=ox)
-        uptake.phase_uptake(sl, chambers=truth.chambers, blanks=list(truth.blanks), background_method="exponential")
-        trace.phase_flags(sl, ph, time_s=ts, oxygen_pct=ox, temperature_c=tc)
-        trace.steepest_window_slopes(ts, cc, ph, 60.0)
+    def round_ratio(key: str) -> float:
+        return statistics.median(w / b for w, b in zip(wall[key], per_round_bare, strict=True))
 
     gc.collect()
     tracemalloc.start()
-    full()
+    analysis(do_import(), extra=True)
     _, peak = tracemalloc.get_traced_memory()
     tracemalloc.stop()
     rss_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
@@ -140,32 +144,35 @@ def main() -> None:
     merged = used.merge(truth.phases, on=["channel", "cycle"], suffixes=("", "_true"))
     clean = merged[merged.clean]
     error = (clean.mo2_mg_kg_h / clean.mo2_mg_kg_h_true - 1).abs()
-
-    print(f"measure phases: {len(slopes):,} (channel x cycle); used {len(used):,}; flags {len(flags)}")
+    print(f"measure phases: {len(slopes):,} (channel x cycle); used {len(used):,}")
     print(f"MO2 error of clean phases: median {100 * error.median():.2f} %, max {100 * error.max():.2f} %")
     print()
-    c = CPU
-    c_bare = min(c["parse_c"], c["parse_pyarrow"])
-    c_import = c.get("import", 0.0)
-    c_core = c["conv"] + c["phases"] + c["slopes"] + c["mo2"]
-    c_total = c_import + c_core + c["flags"] + c["windows"]
 
-    def line(label: str, wall: float, cpu: float, target: str = "") -> None:
-        print(f"{label:40s}{wall:8.3f} {wall / bare:7.2f}   {cpu:8.3f} {cpu / c_bare:7.2f}   {target}")
+    def line(label: str, key: str | None = None, *, wall_s: float | None = None, cpu_s: float | None = None,
+             target: str = "") -> None:
+        w = med[key] if key else wall_s
+        c = med_cpu[key] if key else cpu_s
+        rr = f"{round_ratio(key):7.2f}" if key else "       "
+        print(f"{label:44s}{w:8.3f} {w / bare:7.2f} {rr}   {c:8.3f} {c / c_bare:7.2f}   {target}")
 
-    print(f"median of {args.repeats} runs                   wall s  x parse      cpu s  x parse")
-    line("bare pandas parse, C engine", parse["c"], c["parse_c"])
-    line("bare pandas parse, pyarrow engine", parse["pyarrow"], c["parse_pyarrow"])
-    line(f"bare parse (faster: {bare_engine})", bare, c_bare)
-    line("swimlab import (read_logger)", t_import, c_import)
-    line("  unit conversion", t_conv, c["conv"])
-    line("  phases from pump", t_phases, c["phases"])
-    line("  slopes", t_slopes, c["slopes"])
-    line("  MO2 (background + uptake)", t_mo2, c["mo2"])
-    line("phases + slopes + MO2 (with conversion)", core, c_core, "target < 0.5")
-    line("  phase flags", t_flags, c["flags"])
-    line("  steepest 60 s windows", t_windows, c["windows"])
-    line("import + analysis", total, c_total, "target < 1.5")
+    core_keys = ("conv", "phases", "slopes", "mo2")
+    print(f"median of {args.repeats} interleaved rounds          wall s  x parse x/round"
+          f"      cpu s  x parse")
+    line("bare pandas parse, C engine", "parse_c")
+    line("bare pandas parse, pyarrow engine", "parse_pyarrow")
+    print(f"  (yardstick: the faster, {bare_engine}; x/round divides by each round's faster parse)")
+    line("swimlab import (read_logger)", "import")
+    line("  SHA-256 of the raw bytes (when kept)", "sha256")
+    line("  unit conversion", "conv")
+    line("  phases from pump", "phases")
+    line("  slopes", "slopes")
+    line("  MO2 (background + uptake)", "mo2")
+    line("phases + slopes + MO2 (with conversion)", wall_s=sum(med[k] for k in core_keys),
+         cpu_s=sum(med_cpu[k] for k in core_keys), target="target < 0.5")
+    line("import + analysis, end to end", "end_to_end", target="target < 1.5")
+    line("  phase flags", "flags")
+    line("  steepest 60 s windows (MMR)", "windows")
+    line("import + analysis + flags + windows", "end_to_end_extra")
     print(f"peak traced memory of import + analysis {peak / 1e6:7.0f} MB          target < 1000")
     print(f"peak resident memory of the process     {rss_mb:7.0f} MB")
 

@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import codecs
 import csv
+import functools
 import hashlib
 import json
 import math
@@ -932,7 +933,9 @@ class LoggerTrace:
     name
         The file's name.
     sha256
-        SHA-256 checksum of the raw bytes (hex).
+        SHA-256 checksum of the raw bytes (hex), computed on first use: the lab book, bundles
+        and the app's upload hash a raw file once, when it is kept, and pass it here by that
+        checksum, so reading it for an analysis need not hash it again.
     time_s
         Time of each kept reading since the first kept reading, strictly increasing. [s]
     start_time
@@ -965,7 +968,7 @@ class LoggerTrace:
     """
 
     name: str
-    sha256: str
+    raw: bytes = field(repr=False, compare=False)
     time_s: np.ndarray
     start_time: datetime | None
     oxygen: dict[str, np.ndarray]
@@ -979,32 +982,36 @@ class LoggerTrace:
     start_time_of_day: time | None = None
     elapsed_start_s: float | None = None
 
+    @functools.cached_property
+    def sha256(self) -> str:
+        return sha256_hex(self.raw)
+
 
 class _Glitches:
     """Collects findings as arrays, turned into one table at the end."""
 
     def __init__(self) -> None:
-        self.parts: list[pd.DataFrame] = []
+        self.lines: list[np.ndarray] = []
+        self.rest: list[tuple[str, str, list[Any], str]] = []
 
     def add(self, lines: np.ndarray, column: str, kind: str, values: Any, action: str) -> None:
         lines = np.asarray(lines, dtype=np.int64)
         if lines.size == 0:
             return
-        if isinstance(values, str):
-            values = [values] * lines.size
-        self.parts.append(pd.DataFrame({
-            "line": lines, "column": column, "kind": kind,
-            "value": pd.array(list(values), dtype=object), "action": action,
-        }))
+        values = [values] * lines.size if isinstance(values, str) else list(values)
+        self.lines.append(lines)
+        self.rest.append((column, kind, values, action))
 
     def table(self) -> pd.DataFrame:
-        if not self.parts:
-            return pd.DataFrame({
-                "line": pd.Series([], dtype=np.int64), "column": pd.Series([], dtype=object),
-                "kind": pd.Series([], dtype=object), "value": pd.Series([], dtype=object),
-                "action": pd.Series([], dtype=object),
-            })
-        out = pd.concat(self.parts, ignore_index=True)
+        lines = np.concatenate(self.lines) if self.lines else np.zeros(0, dtype=np.int64)
+        sizes = [part.size for part in self.lines]
+        column = np.repeat(np.array([r[0] for r in self.rest], dtype=object), sizes)
+        kind = np.repeat(np.array([r[1] for r in self.rest], dtype=object), sizes)
+        action = np.repeat(np.array([r[3] for r in self.rest], dtype=object), sizes)
+        value = np.empty(lines.size, dtype=object)
+        value[:] = [v for r in self.rest for v in r[2]]
+        out = pd.DataFrame({"line": lines, "column": column, "kind": kind, "value": value,
+                            "action": action})
         for col in ("column", "kind", "value", "action"):
             out[col] = out[col].astype(object)
         return out.sort_values(["line", "column"], kind="stable").reset_index(drop=True)
@@ -1116,11 +1123,13 @@ def _bad_width_lines(data: bytes, mapping: ColumnMapping, offset: int,
 class _Cells:
     """A numeric column's values with where it was empty or held text.
 
-    ``empty`` None means no cell was empty; ``text`` None means a text cell is any non-finite
-    value that is not empty (the Arrow reader turns the words NaN and inf into floats).
+    ``values`` None means the column was read as numbers and its values are taken later for the
+    kept readings only. ``empty`` None means no cell was empty; ``text`` None means a text cell
+    is any non-finite value that is not empty (the Arrow reader turns the words NaN and inf into
+    floats).
     """
 
-    values: np.ndarray
+    values: np.ndarray | None
     empty: np.ndarray | None
     text: np.ndarray | None
     text_of: Any
@@ -1178,6 +1187,41 @@ def _numeric_column(arr: pa.ChunkedArray, decimal: str) -> _Cells:
         return [str(v) for v in arr.take(pa.array(idx)).to_pylist()]
 
     return _Cells(values, empty, text, text_of_str)
+
+
+def _float_text_of(arr: pa.ChunkedArray) -> Any:
+    """The text of rows of a column read as numbers (for glitch reports)."""
+    def text_of(idx: np.ndarray) -> list[str]:
+        values = arr.take(pa.array(np.asarray(idx, dtype=np.int64))).to_pylist()
+        return ["" if v is None else repr(float(v)).replace("nan", "NaN") for v in values]
+
+    return text_of
+
+
+def _kept_floats(table: pa.Table, columns: list[str], kept: np.ndarray | None) -> dict[str, np.ndarray]:
+    """The kept rows of number columns as read-only numpy arrays, empty cells as NaN.
+
+    Dropped readings are few: the runs of kept rows are sliced without copying, and Arrow joins
+    them (filling empty cells) in its own memory pool, so the values are copied once and numpy
+    views them without a further copy.
+    """
+    if not columns:
+        return {}
+    part = table.select(columns)
+    if kept is not None:
+        breaks = np.flatnonzero(np.diff(kept) != 1) + 1
+        firsts = kept[np.concatenate([[0], breaks])]
+        lasts = kept[np.concatenate([breaks, [kept.size]]) - 1]
+        part = pa.concat_tables([part.slice(int(a), int(b) - int(a) + 1)
+                                 for a, b in zip(firsts, lasts, strict=True)])
+    out = {}
+    for col in columns:
+        arr = part.column(col)
+        if arr.null_count:
+            arr = pc.fill_null(arr, np.nan)
+        arr = arr.combine_chunks() if arr.num_chunks != 1 else arr.chunk(0)
+        out[col] = arr.to_numpy(zero_copy_only=True)
+    return out
 
 
 def _time_seconds(arr: pa.ChunkedArray, mapping: ColumnMapping) -> tuple[Any, ...]:
@@ -1377,7 +1421,8 @@ def read_logger(data: bytes, *, name: str, mapping: ColumnMapping | None = None,
     Parameters
     ----------
     data
-        The file's raw bytes. They are not changed; their SHA-256 is returned with the trace.
+        The file's raw bytes. They are not changed, and are kept with the trace (with their
+        SHA-256, computed when first asked for).
     name
         The file's name, used in every error message and kept with the trace.
     mapping
@@ -1418,10 +1463,7 @@ def read_logger(data: bytes, *, name: str, mapping: ColumnMapping | None = None,
         mapping = guess_mapping(data, name=name)
     elif not isinstance(mapping, ColumnMapping):
         raise TypeError(f"mapping must be a ColumnMapping or None; got {type(mapping).__name__}")
-    trace = _read(data, name, mapping, gap_factor)
-    # Hashed after the parse, not beside it: a hashing thread competes with the parser's
-    # threads for the cores and costs more than it saves.
-    return LoggerTrace(sha256=sha256_hex(data), **trace)
+    return LoggerTrace(raw=data, **_read(data, name, mapping, gap_factor))
 
 
 def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> dict[str, Any]:
@@ -1480,7 +1522,13 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
     # 2. value columns: classify every cell once ---------------------------------------------
     cells: dict[str, _Cells] = {}
     for col in oxygen_cols + temp_cols:
-        cells[col] = _numeric_column(table.column(col), mapping.decimal)
+        arr = table.column(col)
+        if pa.types.is_floating(arr.type):
+            # Values are taken later, for the kept readings only (:func:`_kept_floats`).
+            empty = pc.is_null(arr).to_numpy(zero_copy_only=False) if arr.null_count else None
+            cells[col] = _Cells(None, empty, None, _float_text_of(arr))
+        else:
+            cells[col] = _numeric_column(arr, mapping.decimal)
     all_empty = np.ones(n_rows, dtype=bool)
     empties = [cell.empty for cell in cells.values()]
     if mapping.pump:
@@ -1538,13 +1586,15 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
     temperature: dict[str, np.ndarray] = {}
     clean: dict[str, np.ndarray] = {}
     lo, hi = OXYGEN_RANGES[mapping.oxygen_unit]
+    floats = _kept_floats(table, [c for c in cells if cells[c].values is None],
+                          None if all_kept else kept)
     for col in oxygen_cols + temp_cols:
         is_oxygen = col in oxygen_cols
         codes = mapping.oxygen_error_codes if is_oxygen else mapping.temperature_error_codes
         what = f"oxygen [{mapping.oxygen_unit}]" if is_oxygen else "temperature [°C]"
         low, high = (lo, hi) if is_oxygen else TEMPERATURE_RANGE_C
-        clean[col] = _clean_values(col, cells[col], kept, all_kept, row_lines, codes, what, low,
-                                   high, name, glitches, mapping)
+        clean[col] = _clean_values(col, cells[col], floats.get(col), kept, all_kept, row_lines,
+                                   codes, what, low, high, name, glitches, mapping)
     for label, col in mapping.oxygen.items():
         oxygen[label] = clean[col]
     for label, col in mapping.temperature.items():
@@ -1607,23 +1657,31 @@ def _time_texts(t: np.ndarray, origin: Any, rows: np.ndarray, mapping: ColumnMap
     return [f"{v / factor:g}" for v in t]
 
 
-def _clean_values(col: str, cells: _Cells, kept: np.ndarray, all_kept: bool,
-                  row_lines: np.ndarray, codes: tuple[float, ...], what: str, low: float,
-                  high: float, name: str, glitches: _Glitches,
+def _clean_values(col: str, cells: _Cells, kept_values: np.ndarray | None, kept: np.ndarray,
+                  all_kept: bool, row_lines: np.ndarray, codes: tuple[float, ...], what: str,
+                  low: float, high: float, name: str, glitches: _Glitches,
                   mapping: ColumnMapping) -> np.ndarray:
     """Values of the kept readings with empty cells, error codes and text set missing.
 
-    One pass over the values finds every cell that is not a plausible reading (NaN compares
-    False); only those few cells are classified further.
+    ``kept_values`` are the kept readings of a column the Arrow reader read as numbers (read
+    only; copied here only if a value must be set missing), or None to take them from
+    ``cells``. One pass over the values finds every cell that is not a plausible reading (NaN
+    compares False); only those few cells are classified further.
     """
-    values = cells.values if all_kept else cells.values[kept]
+    if kept_values is not None:
+        values = kept_values
+    else:
+        values = cells.values if all_kept else cells.values[kept]
     inner_codes = [c for c in codes if low <= c <= high]
-    if not inner_codes and values.size and cells.empty is None:
-        # Two reading passes without temporaries; NaN makes both comparisons False.
-        if values.min() >= low and values.max() <= high:
+    idx = None
+    if not inner_codes and values.size:
+        # Reading passes without temporaries: fmin and fmax skip NaN, which min and max return.
+        if cells.empty is None and values.min() >= low and values.max() <= high:
             return values
-    outside = ~((values >= low) & (values <= high))
-    idx = np.flatnonzero(outside)
+        if np.fmin.reduce(values) >= low and np.fmax.reduce(values) <= high:
+            idx = np.flatnonzero(np.isnan(values))  # every finite value is plausible
+    if idx is None:
+        idx = np.flatnonzero(~((values >= low) & (values <= high)))
     if inner_codes:
         inside_code = np.zeros(values.size, dtype=bool)
         for c in inner_codes:
@@ -1633,7 +1691,8 @@ def _clean_values(col: str, cells: _Cells, kept: np.ndarray, all_kept: bool,
         return values
     rows = idx if all_kept else kept[idx]
     empty = cells.empty_at(rows)
-    text = cells.text_at(rows)
+    # A number column's text cells are the words NaN and inf, read as non-finite numbers.
+    text = ~np.isfinite(values[idx]) & ~empty if cells.values is None else cells.text_at(rows)
     code = np.isin(values[idx], codes) & ~empty & ~text
     impossible = ~(empty | text | code)
     n = values.size
@@ -1669,5 +1728,9 @@ def _clean_values(col: str, cells: _Cells, kept: np.ndarray, all_kept: bool,
     if n_code:
         glitches.add(row_lines[idx[code]], col, "error_code",
                      [f"{v:g}" for v in values[idx[code]]], "value set missing")
-    values[idx] = np.nan
+    change = idx[~np.isnan(values[idx])]  # empty cells of a number column are NaN already
+    if change.size:
+        if not values.flags.writeable:
+            values = values.copy()
+        values[change] = np.nan
     return values
