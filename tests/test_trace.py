@@ -476,3 +476,71 @@ def test_flags_for_floor_temperature_and_curvature_on_a_constructed_table():
                                     "temperature_drift_phase_max_c": 5.0, "curvature_slope_change_max": 10.0,
                                     "noise_ratio_max": 3.0})
     assert trace.phase_flags(out, phases, time_s=t, oxygen_pct={"A": pct}, settings=strict) == []
+
+
+# --- channels side by side ---------------------------------------------------------------------
+
+
+def test_each_channel_keeps_order_and_equals_the_plain_loop():
+    import threading
+
+    names = []
+
+    def work(c):
+        names.append(threading.current_thread().name)
+        return c * 3
+
+    items = list(range(40))
+    assert trace.each_channel(work, items) == [c * 3 for c in items]
+    assert trace.each_channel(work, [7]) == [21]
+    assert trace.each_channel(work, []) == []
+
+
+def test_each_channel_raises_the_error_of_a_channel():
+    def work(c):
+        if c == "B":
+            raise InputError("bad channel", field=f"oxygen.{c}")
+        return c
+
+    with pytest.raises(InputError, match="bad channel"):
+        trace.each_channel(work, ["A", "B", "C"])
+
+
+def test_each_channel_called_inside_itself_runs_the_inner_loop_plainly():
+    # Both workers busy with outer items that each fan out again: without the guard the inner
+    # calls would wait for workers that are waiting for them.
+    def inner(c):
+        return c + 1
+
+    def outer(c):
+        return sum(trace.each_channel(inner, [c, c, c]))
+
+    import threading
+
+    result = []
+    runner = threading.Thread(target=lambda: result.append(trace.each_channel(outer, [1, 2, 3, 4])),
+                              daemon=True)
+    runner.start()
+    runner.join(timeout=30)
+    assert not runner.is_alive(), "each_channel waited on itself"
+    assert result == [[6, 9, 12, 15]]
+
+
+def test_slopes_and_windows_of_many_channels_equal_those_of_each_channel_alone():
+    trial = simulate_trial(seed=11, channels=list("ABCD"), speeds_m_s=[0.2, 0.4], step_duration_s=1800.0)
+    conc = trace.concentration_from_trace(trial.oxygen_pct, "% air saturation", trial.temperature_c,
+                                          trial.truth.salinity, trial.truth.pressure_pa)
+    phases = trace.phases_from_pump(trial.time_s, trial.pump, trial.truth.cycle["wait_s"])
+    together = trace.fit_slopes(trial.time_s, conc, phases, temperature_c=trial.temperature_c,
+                                oxygen_pct=trial.oxygen_pct)
+    windows = trace.steepest_window_slopes(trial.time_s, conc, phases, 60.0)
+    for c in "ABCD":
+        alone_conc = trace.concentration_from_trace({c: trial.oxygen_pct[c]}, "% air saturation",
+                                                    {c: trial.temperature_c[c]}, trial.truth.salinity,
+                                                    trial.truth.pressure_pa)
+        np.testing.assert_array_equal(alone_conc[c], conc[c])
+        alone = trace.fit_slopes(trial.time_s, {c: conc[c]}, phases, temperature_c={c: trial.temperature_c[c]},
+                                 oxygen_pct={c: trial.oxygen_pct[c]})
+        pd.testing.assert_frame_equal(together[together.channel == c].reset_index(drop=True), alone)
+        alone_w = trace.steepest_window_slopes(trial.time_s, {c: conc[c]}, phases, 60.0)
+        pd.testing.assert_frame_equal(windows[windows.channel == c].reset_index(drop=True), alone_w)
