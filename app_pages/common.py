@@ -521,6 +521,24 @@ def care_notice(settings: LabSettings, *, where: str) -> None:
     )
 
 
+def group_warning(session: Session, unit_id: str) -> None:
+    """Say, where a group trial's values are shown, that they are per capita of fish swum together."""
+    from swimlab.checks import GROUP_CAVEAT
+
+    group = next((g for g in session.groups if g.group_id == unit_id), None) or session.group_of(unit_id)
+    if group is None:
+        return
+    if group.group_id == unit_id:
+        st.warning(f"**Group {group.group_id}**: {len(group.fish_ids)} fish ({', '.join(group.fish_ids)}) swum "
+                   f"together in chamber {group.chamber}; fatigue definition "
+                   f"**{group.fatigue_definition.replace('_', ' ')}**. MO2 is the group's, computed with the fish's "
+                   f"summed mass and volume; per kg and per fish it is per capita. {GROUP_CAVEAT}",
+                   icon=":material/groups:")
+    else:
+        st.info(f"Fish {unit_id} swam in group {group.group_id}: its chamber's MO2 and Ucrit are the group's — "
+                f"choose group {group.group_id} to see them.", icon=":material/groups:")
+
+
 def explain(title: str, text: str, functions: list[str] | None = None) -> None:
     """An expander with the equations and sources, taken from the science modules' docstrings."""
     with st.expander(title):

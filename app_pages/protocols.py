@@ -197,8 +197,12 @@ except (ValueError, LookupError, KeyError) as exc:
 pr = analysis.protocol
 
 st.header("Results by protocol")
-fish_ids = [f.fish_id for f in session.fish]
-fish_id = st.selectbox("Fish", fish_ids, key="pr_fish") if len(fish_ids) > 1 else fish_ids[0]
+fish_ids = session.unit_ids() + [f.fish_id for f in session.fish if session.group_of(f.fish_id) is not None]
+fish_id = (st.selectbox("Fish or group", fish_ids, key="pr_fish",
+                        format_func=lambda u: f"group {u} (fish swum together)"
+                        if any(g.group_id == u for g in session.groups) else u)
+           if len(fish_ids) > 1 else fish_ids[0])
+common.group_warning(session, fish_id)
 if not pr.parts and not pr.problems:
     st.info("This session has no result beyond the step test (no ramp, endurance, repeat swim or recovery, no gait "
             "events and no tail beats). Its step-test results are on the Results page.")
@@ -210,7 +214,7 @@ FIGURES = {
     "kinematics": (plots.frequency_speed_figure, "tail-beat-frequency"),
 }
 TABLES = {"ramp": "ramp_phases", "endurance": "endurance", "recovery": "recovery_curve", "gait": "gait_steps",
-          "kinematics": "kinematics"}
+          "kinematics": "kinematics", "group": "group_steps"}
 results = pr.results
 own = results[results["fish_id"].astype(str) == str(fish_id)] if not results.empty else results
 for part in pr.parts:

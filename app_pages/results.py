@@ -22,8 +22,12 @@ analysis = common.analysis_for(book, session)
 if analysis is None:
     st.stop()
 
-fish_ids = [f.fish_id for f in session.fish]
-fish_id = st.selectbox("Fish", fish_ids, key="rs_fish") if len(fish_ids) > 1 else fish_ids[0]
+fish_ids = session.unit_ids()  # fish, and groups of fish swum together
+fish_id = (st.selectbox("Fish or group", fish_ids, key="rs_fish",
+                        format_func=lambda u: f"group {u} (fish swum together)"
+                        if any(g.group_id == u for g in session.groups) else u)
+           if len(fish_ids) > 1 else fish_ids[0])
+common.group_warning(session, fish_id)
 
 welfare = analysis.flags[analysis.flags["welfare"].astype(bool)] if not analysis.flags.empty else analysis.flags
 if len(welfare):
@@ -89,6 +93,11 @@ STEP_COLUMNS = {
     "mo2_mg_kg_h": st.column_config.NumberColumn("MO2 [mg O2/kg/h]", format="%.1f"),
     "mo2_sd_mg_kg_h": st.column_config.NumberColumn("MO2 SD [mg O2/kg/h]", format="%.1f"),
     "n_phases": st.column_config.NumberColumn("Phases [-]", format="%d"),
+    "n_fish": st.column_config.NumberColumn("Fish in the chamber [-]", format="%d"),
+    "mo2_mg_h": st.column_config.NumberColumn("Chamber MO2 [mg O2/h]", format="%.2f",
+                                              help="For a group trial: the group's MO2"),
+    "mo2_per_fish_mg_h": st.column_config.NumberColumn("MO2 per fish [mg O2/h]", format="%.2f",
+                                                       help="Chamber MO2 / fish in the chamber (per capita)"),
     "cot_gross_mg_kg_km": st.column_config.NumberColumn("Gross COT [mg O2/kg/km]", format="%.1f"),
     "cot_net_mg_kg_km": st.column_config.NumberColumn("Net COT [mg O2/kg/km]", format="%.1f"),
     "cot_gross_j_kg_m": st.column_config.NumberColumn("Gross COT [J/kg/m]", format="%.2f"),

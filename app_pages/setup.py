@@ -97,6 +97,8 @@ with tabs[1]:
         grid("characterisation", current_type)
 with tabs[2]:
     grid("fish", current_type, caption="one row per fish; paste several rows from a spreadsheet at once")
+    grid("groups", current_type, caption="only when several fish swim together in one respirometer: the chamber's "
+         "MO2 is then the group's, given per capita, and the group's fatigue definition is required")
 with tabs[3]:
     protocol_type = st.selectbox(
         "Protocol type", PROTOCOL_TYPES, format_func=PROTOCOL_LABELS.get, key=f"su_ptype_{gen}",

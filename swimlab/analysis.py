@@ -62,6 +62,8 @@ class Analysis:
     concentration: dict[str, np.ndarray] = field(default_factory=dict, repr=False)
     import_report: pd.DataFrame = field(default_factory=pd.DataFrame)
     calibration: Any = None
+    groups: pd.DataFrame = field(default_factory=pd.DataFrame)
+    """Group trials: one row per group of fish swum together in one chamber (see :func:`_groups`)."""
     protocol: Any = None
     """Per-protocol results (:class:`swimlab.protocol_analysis.ProtocolResults`): ramp Umax,
     endurance times, recovery ratio, EPOC, gait and kinematics, each row named by its protocol."""
@@ -94,6 +96,7 @@ class Analysis:
             "settings": self.settings.to_dict(),
             "water": self.water,
             "fish": json_records(self.fish),
+            "groups": json_records(self.groups),
             "steps": json_records(self.steps),
             "measure_phases": json_records(self.measure),
             "results": json_records(self.results),
@@ -160,16 +163,7 @@ def analyse(
 
     if session.sensor is None:
         flags.append(checks.flag("SENSOR_CALIBRATION_MISSING", "No oxygen sensor calibration recorded."))
-    shared = sorted({f.chamber for f in session.fish if sum(g.chamber == f.chamber for g in session.fish) > 1})
-    if shared:
-        # Per-capita analysis of fish swum together is not built yet; using one fish's mass for
-        # the whole group's uptake would be silently wrong, so refuse it in words.
-        ids = [f.fish_id for f in session.fish if f.chamber in shared]
-        raise InputError(
-            f"fish {ids} share chamber(s) {shared}: several fish swum together in one respirometer "
-            "(a group trial) cannot be analysed yet — give each fish its own chamber and oxygen channel",
-            field="fish.chamber",
-        )
+    groups = _groups(session, settings, fish_table, section_area, flags)
     if session.protocol.type in ("ramp", "endurance"):
         flags.append(checks.flag(
             "PROTOCOL_NOT_COMPARABLE",
@@ -204,7 +198,7 @@ def analyse(
     steps = _steps(session, steps_sched, measure, water_props, section_area, calibration, flags)
     sample_interval_s = _sample_interval(traces)
     results, fits, ucrits, steps = _performance(
-        session, settings, steps_sched, steps, measure, windows, flags, n_boot, seed, sample_interval_s,
+        session, settings, steps_sched, steps, measure, windows, flags, n_boot, seed, sample_interval_s, groups,
     )
 
     base = Analysis(
@@ -223,6 +217,7 @@ def analyse(
         concentration=concentration,
         import_report=import_report,
         calibration=calibration,
+        groups=groups,
     )
     # the protocol stage: ramp, endurance, repeat swim, recovery, gait and kinematics
     protocol, protocol_flags = protocol_analysis.analyse_protocol(session, base, first_swim=first_swim)
@@ -262,6 +257,7 @@ def _fish_geometry(session, settings, flags):
     area = _section_area(session)
     rows = []
     for fish in session.fish:
+        group = session.group_of(fish.fish_id)
         length, depth, width = fish.total_length_cm * CM, fish.body_depth_cm * CM, fish.body_width_cm * CM
         frontal = float(flume.frontal_area(depth, width))
         row = {
@@ -280,6 +276,7 @@ def _fish_geometry(session, settings, flags):
             "volume_ratio": (session.flume.respirometer_volume_l - fish.mass_g * G / settings.fish_density_kg_m3 * 1000.0)
             / (fish.mass_g * G / settings.fish_density_kg_m3 * 1000.0),
             "wetted_area_cm2": float(hydrodynamics.wetted_area(length, depth, width)) / CM**2,
+            "group_id": "" if group is None else group.group_id,
         }
         try:
             ratio = float(flume.blocking_ratio(frontal, area))
@@ -294,7 +291,9 @@ def _fish_geometry(session, settings, flags):
         except InputError as exc:
             flags.append(checks.flag("FISH_LARGER_THAN_SECTION", str(exc), scope="fish", where=f"fish {fish.fish_id}"))
         vr = row["volume_ratio"]
-        if not settings.volume_ratio_min <= vr <= settings.volume_ratio_max:
+        if group is not None:
+            row["volume_ratio"] = np.nan  # a shared chamber's ratio is the group's (see _groups)
+        elif not settings.volume_ratio_min <= vr <= settings.volume_ratio_max:
             flags.append(checks.flag(
                 "VOLUME_RATIO_OUTSIDE_GUIDANCE",
                 f"Respirometer-to-fish volume ratio {vr:.0f} is outside "
@@ -303,6 +302,78 @@ def _fish_geometry(session, settings, flags):
             ))
         rows.append(row)
     return pd.DataFrame(rows), area
+
+
+GROUP_COLUMNS = [
+    "group_id", "chamber", "n_fish", "fish_ids", "mass_g", "fish_volume_l", "water_volume_l", "volume_ratio",
+    "mean_total_length_cm", "frontal_area_cm2", "blocking_ratio", "blocking_epsilon", "fatigue_definition",
+    "fatigue_time_s", "fatigue_from",
+]
+"""Columns of :attr:`Analysis.groups`."""
+
+
+def _groups(session: Session, settings: LabSettings, fish_table: pd.DataFrame, section_area: float,
+            flags: list[dict]) -> pd.DataFrame:
+    """One row per group trial: summed mass and volume, the chamber's water, blocking, fatigue.
+
+    The fish's volumes add (V_fish = Σ M_i / ρ_fish), so the water the group's uptake falls in is
+    V_resp − Σ V_fish. Solid blocking of several bodies in one section is taken as additive to
+    first order, ε = Σ ε_i (the usual wind-tunnel treatment of several small bodies; from memory),
+    and the blocking ratio as Σ A_i / A_section. The group's fatigue time is
+    ``protocol.fatigue_time_s`` or, when it is not entered, the fish's fatigue events read by the
+    group's definition (:func:`swimlab.session.group_fatigue_time_s`).
+    """
+    rows = []
+    p = session.protocol
+    for unit in session.units():
+        if not unit.is_group:
+            continue
+        group = unit.group
+        own = fish_table[fish_table["fish_id"].isin([f.fish_id for f in unit.fish])]
+        volume_fish_l = unit.mass_g * G / settings.fish_density_kg_m3 * 1000.0
+        water_l = session.flume.respirometer_volume_l - volume_fish_l
+        ratio = float(own["blocking_ratio"].sum()) if own["blocking_ratio"].notna().all() else np.nan
+        eps = float(own["blocking_epsilon"].sum()) if own["blocking_epsilon"].notna().all() else np.nan
+        if p.fatigue_time_s is not None:
+            fatigue, source = p.fatigue_time_s, "protocol.fatigue_time_s"
+        else:
+            times = [e.time_s for e in session.events
+                     if e.kind == "fatigue" and e.fish_id in group.fish_ids]
+            group_events = [e.time_s for e in session.events if e.kind == "fatigue" and e.fish_id == group.group_id]
+            from swimlab.session import group_fatigue_time_s
+
+            fatigue = group_fatigue_time_s(group.fatigue_definition or "", times, unit.n_fish)
+            source = f"fish fatigue events ({group.fatigue_definition})" if fatigue is not None else "none recorded"
+            if fatigue is None and group_events:
+                fatigue, source = min(group_events), "group fatigue event"
+        rows.append({
+            "group_id": group.group_id, "chamber": group.chamber, "n_fish": unit.n_fish,
+            "fish_ids": ", ".join(f.fish_id for f in unit.fish), "mass_g": unit.mass_g,
+            "fish_volume_l": volume_fish_l, "water_volume_l": water_l,
+            "volume_ratio": water_l / volume_fish_l, "mean_total_length_cm": unit.total_length_cm,
+            "frontal_area_cm2": float(own["frontal_area_cm2"].sum()), "blocking_ratio": ratio,
+            "blocking_epsilon": eps, "fatigue_definition": group.fatigue_definition,
+            "fatigue_time_s": np.nan if fatigue is None else float(fatigue), "fatigue_from": source,
+        })
+        where = f"group {group.group_id}"
+        flags.append(checks.flag(
+            "GROUP_TRIAL",
+            f"Chamber {group.chamber} holds group {group.group_id} of {unit.n_fish} fish "
+            f"({rows[-1]['fish_ids']}; {unit.mass_g:g} g in all): MO2 is the group's, computed with the summed mass "
+            f"and volume, and given per capita. {checks.GROUP_CAVEAT}",
+            scope="channel", where=where, channel=group.chamber))
+        if np.isfinite(ratio) and ratio > settings.blocking_ratio_limit:
+            flags.append(checks.flag(
+                "BLOCKING_BEYOND_LIMIT",
+                f"Group {group.group_id}: the fish's summed blocking ratio {ratio:.1%} exceeds the limit "
+                f"{settings.blocking_ratio_limit:.0%}.", scope="fish", where=where))
+        vr = rows[-1]["volume_ratio"]
+        if not settings.volume_ratio_min <= vr <= settings.volume_ratio_max:
+            flags.append(checks.flag(
+                "VOLUME_RATIO_OUTSIDE_GUIDANCE",
+                f"Group {group.group_id}: respirometer-to-fish volume ratio {vr:.0f} (summed fish volume) is outside "
+                f"{settings.volume_ratio_min:g}–{settings.volume_ratio_max:g}.", scope="fish", where=where))
+    return pd.DataFrame(rows, columns=GROUP_COLUMNS)
 
 
 def _calibration(session, flags):
@@ -322,7 +393,8 @@ def _uptake(session: Session, settings: LabSettings, logged, flags: list[dict]):
     w = session.water
     pressure_pa = w.barometric_pressure_kpa * 1000.0
     time_s = logged.time_s
-    chambers = session.fish_by_chamber()
+    units = {u.chamber: u for u in session.units()}
+    chambers = units
     missing = sorted(set(chambers) - set(logged.oxygen))
     if missing:
         raise InputError(
@@ -370,9 +442,11 @@ def _uptake(session: Session, settings: LabSettings, logged, flags: list[dict]):
     for blank in session.blanks:
         if blank.slope_mg_l_h is not None:
             blanks.append(uptake.BlankRun(blank.channel, blank.time_s, blank.slope_mg_l_h / 3600.0, "entered"))
+    # a group's uptake falls in the water left by all its fish: its summed mass gives the summed volume
     chamber_setup = {
-        ch: {"respirometer_volume_l": session.flume.respirometer_volume_l, "fish_mass_g": f.mass_g, "fish_id": f.fish_id}
-        for ch, f in chambers.items()
+        ch: {"respirometer_volume_l": session.flume.respirometer_volume_l, "fish_mass_g": u.mass_g,
+             "fish_id": u.unit_id}
+        for ch, u in units.items()
     }
     exclusions = {(e.channel, e.cycle): e.reason for e in session.exclusions}
     measure, uptake_flags = uptake.phase_uptake(
@@ -383,7 +457,14 @@ def _uptake(session: Session, settings: LabSettings, logged, flags: list[dict]):
         exclusions=exclusions,
         settings=settings,
     )
-    flags.extend(uptake_flags)
+    # a group's volume-ratio flag is raised once, by _groups, with the group named
+    grouped = {u.chamber for u in units.values() if u.is_group}
+    flags.extend(f for f in uptake_flags
+                 if not (f["code"] == "VOLUME_RATIO_OUTSIDE_GUIDANCE" and f.get("channel") in grouped))
+    if not measure.empty:
+        n_fish = measure["channel"].astype(str).map({ch: u.n_fish for ch, u in units.items()}).fillna(1).astype(int)
+        measure = measure.assign(n_fish=n_fish.to_numpy(),
+                                 mo2_per_fish_mg_h=measure["mo2_mg_h"].to_numpy(dtype=float) / n_fish.to_numpy())
     windows = trace.steepest_window_slopes(time_s, conc, phases, settings.mmr_window_s)
     return phases, measure, conc, windows
 
@@ -454,7 +535,7 @@ def _steps(session, steps_sched, measure, water_props, section_area, calibration
     columns = [
         "fish_id", "step", "start_s", "end_s", "set_speed_cm_s", "corrected_speed_cm_s", "speed_bl_s",
         "reynolds", "flow_regime", "drag_mn", "drag_power_mw", "mo2_mg_kg_h", "mo2_sd_mg_kg_h",
-        "mo2_se_mg_kg_h", "n_phases",
+        "mo2_se_mg_kg_h", "n_phases", "n_fish", "mo2_mg_h", "mo2_per_fish_mg_h",
     ]
     if steps_sched.empty:
         return pd.DataFrame(columns=columns)
@@ -471,13 +552,26 @@ def _steps(session, steps_sched, measure, water_props, section_area, calibration
                 f"{calibration.speed_min / CM:.1f}–{calibration.speed_max / CM:.1f} cm/s.",
                 scope="step", where=f"step {number}", step=int(number),
             ))
-    for fish in session.fish:
+    for unit in session.units():
+        fish = unit.fish[0]
         length, depth, width = fish.total_length_cm * CM, fish.body_depth_cm * CM, fish.body_width_cm * CM
         try:
-            corrected = np.asarray(flume.corrected_speed(set_speed, length, depth, width, section_area), dtype=float)
+            if unit.is_group:  # solid blocking of several bodies, additive to first order (see _groups)
+                eps = sum(float(flume.solid_blocking(f.total_length_cm * CM, f.body_depth_cm * CM,
+                                                     f.body_width_cm * CM, section_area)) for f in unit.fish)
+                corrected = np.asarray(set_speed, dtype=float) * (1.0 + eps)
+                length = unit.total_length_cm * CM
+            else:
+                corrected = np.asarray(flume.corrected_speed(set_speed, length, depth, width, section_area), dtype=float)
         except InputError:
             corrected = np.full(set_speed.shape, np.nan)
-        if nu is not None and rho is not None:
+        if unit.is_group and nu is not None:
+            # the drag of fish in a school is not that of each fish alone: not computed for a group
+            re = np.asarray(hydrodynamics.reynolds_number(length, np.where(np.isfinite(corrected), corrected, set_speed), nu),
+                            dtype=float)
+            regime = np.asarray(hydrodynamics.flow_regime(re), dtype=object)
+            drag = power = np.full(set_speed.shape, np.nan)
+        elif nu is not None and rho is not None:
             speed_for_hydro = np.where(np.isfinite(corrected), corrected, set_speed)
             re = np.asarray(hydrodynamics.reynolds_number(length, speed_for_hydro, nu), dtype=float)
             regime = np.asarray(hydrodynamics.flow_regime(re), dtype=object)
@@ -486,13 +580,14 @@ def _steps(session, steps_sched, measure, water_props, section_area, calibration
         else:
             re = drag = power = np.full(set_speed.shape, np.nan)
             regime = np.full(set_speed.shape, "", dtype=object)
-        own = measure[(measure["fish_id"] == fish.fish_id) & measure["used"]] if not measure.empty else measure
+        own = measure[(measure["fish_id"] == unit.unit_id) & measure["used"]] if not measure.empty else measure
         for i, number in enumerate(steps_sched["step"].to_numpy()):
             in_step = own[own["step"] == number] if not own.empty else own
             values = in_step["mo2_mg_kg_h"].to_numpy(dtype=float) if not in_step.empty else np.array([])
+            absolute = in_step["mo2_mg_h"].to_numpy(dtype=float) if not in_step.empty else np.array([])
             n = values.size
             rows.append({
-                "fish_id": fish.fish_id,
+                "fish_id": unit.unit_id,
                 "step": int(number),
                 "start_s": float(steps_sched["start_s"].iloc[i]),
                 "end_s": float(steps_sched["end_s"].iloc[i]),
@@ -507,17 +602,29 @@ def _steps(session, steps_sched, measure, water_props, section_area, calibration
                 "mo2_sd_mg_kg_h": float(values.std(ddof=1)) if n > 1 else np.nan,
                 "mo2_se_mg_kg_h": float(values.std(ddof=1) / np.sqrt(n)) if n > 1 else np.nan,
                 "n_phases": n,
+                "n_fish": unit.n_fish,
+                "mo2_mg_h": float(absolute.mean()) if n else np.nan,
+                "mo2_per_fish_mg_h": float(absolute.mean()) / unit.n_fish if n else np.nan,
             })
         if np.any(regime == "transitional"):
             flags.append(checks.flag(
                 "FLOW_TRANSITIONAL",
                 "Reynolds number lies in the transitional range at one or more steps.",
-                scope="fish", where=f"fish {fish.fish_id}",
+                scope="fish", where=f"{'group' if unit.is_group else 'fish'} {unit.unit_id}",
             ))
     return pd.DataFrame(rows, columns=columns)
 
 
-def _performance(session, settings, steps_sched, steps, measure, windows, flags, n_boot, seed, sample_interval_s):
+def _note_group(rows: list[dict], start: int, note: str) -> None:
+    """Add a group trial's caveat to the notes of the result rows from ``start`` on."""
+    if not note:
+        return
+    for row in rows[start:]:
+        row["note"] = f"{row['note']}; {note}" if row["note"] else note
+
+
+def _performance(session, settings, steps_sched, steps, measure, windows, flags, n_boot, seed, sample_interval_s,
+                 groups=None):
     result_rows: list[dict] = []
     fits: dict[str, Any] = {}
     ucrits: dict[str, dict[str, Any]] = {}
@@ -535,16 +642,24 @@ def _performance(session, settings, steps_sched, steps, measure, windows, flags,
             "note": note,
         })
 
-    for fish in session.fish:
-        fid = fish.fish_id
-        length = fish.total_length_cm * CM
-        mass_kg = fish.mass_g * G
+    group_fatigue = {} if groups is None or groups.empty else dict(zip(groups["group_id"], groups["fatigue_time_s"],
+                                                                           strict=True))
+    for unit in session.units():
+        fid = unit.unit_id
+        length = unit.total_length_cm * CM
+        mass_kg = unit.mass_g * G
         own_steps = steps[steps["fish_id"] == fid]
+        group_note = "" if not unit.is_group else (
+            f"group trial of {unit.n_fish} fish ({unit.mass_g:g} g summed; MO2 per capita): not comparable with fish swum alone")
+        result_start = len(result_rows)
 
         # Ucrit on corrected and on set speeds (Brett 1964).
         if step_protocol and not steps_sched.empty:
             durations = (steps_sched["end_s"] - steps_sched["start_s"]).to_numpy()
-            fatigue = None if protocol.fatigue_time_s is None else protocol.fatigue_time_s - protocol.start_s
+            fatigue_at = protocol.fatigue_time_s
+            if unit.is_group and fatigue_at is None and np.isfinite(group_fatigue.get(fid, np.nan)):
+                fatigue_at = float(group_fatigue[fid])
+            fatigue = None if fatigue_at is None else fatigue_at - protocol.start_s
             corrected = own_steps["corrected_speed_cm_s"].to_numpy() * CM
             set_speeds = own_steps["set_speed_cm_s"].to_numpy() * CM
             res_set = performance.ucrit(set_speeds, durations, fatigue, body_length_m=length, settings=settings)
@@ -555,16 +670,19 @@ def _performance(session, settings, steps_sched, steps, measure, windows, flags,
             ucrits[fid] = {"corrected": res_cor, "set": res_set}
             for f in res_set.flags:
                 flags.append({**f, "where": f.get("where") or f"fish {fid}"})
+            basis = "" if not unit.is_group else (
+                f"; group fatigue: {unit.group.fatigue_definition.replace('_', ' ')}, mean body length")
             if res_cor is not None and res_cor.ucrit_m_s is not None:
-                add(fid, "ucrit", res_cor.ucrit_m_s / CM, "cm/s", "Brett (1964), blocking-corrected speed")
-                add(fid, "ucrit_bl", res_cor.ucrit_bl_s, "BL/s", "Brett (1964), blocking-corrected speed")
+                add(fid, "ucrit", res_cor.ucrit_m_s / CM, "cm/s", f"Brett (1964), blocking-corrected speed{basis}")
+                add(fid, "ucrit_bl", res_cor.ucrit_bl_s, "BL/s", f"Brett (1964), blocking-corrected speed{basis}")
             if res_set.ucrit_m_s is not None:
-                add(fid, "ucrit_set", res_set.ucrit_m_s / CM, "cm/s", "Brett (1964), set speed (uncorrected)")
+                add(fid, "ucrit_set", res_set.ucrit_m_s / CM, "cm/s", f"Brett (1964), set speed (uncorrected){basis}")
 
         # Speed–MO2 fits on per-phase MO2 against corrected speed.
         own_measure = measure[(measure["fish_id"] == fid) & measure["used"] & (measure["step"] > 0)] if not measure.empty else pd.DataFrame()
         if own_measure.empty or own_steps.empty:
             fits[fid] = None
+            _note_group(result_rows, result_start, group_note)
             continue
         speed_of_step = dict(zip(own_steps["step"], own_steps["corrected_speed_cm_s"].fillna(own_steps["set_speed_cm_s"]) * CM, strict=True))
         u = own_measure["step"].map(speed_of_step).to_numpy(dtype=float)
@@ -649,6 +767,7 @@ def _performance(session, settings, steps_sched, steps, measure, windows, flags,
                     uopt.cotmin_ci95, note)
             for f in uopt.flags:
                 flags.append({**f, "where": f.get("where") or f"fish {fid}"})
+        _note_group(result_rows, result_start, group_note)
 
     results = pd.DataFrame(
         result_rows, columns=["fish_id", "quantity", "value", "unit", "method", "ci_low", "ci_high", "note"]

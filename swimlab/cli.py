@@ -242,6 +242,9 @@ def _analyse(args: argparse.Namespace) -> int:
     protocol = getattr(result, "protocol", None)
     if protocol is not None and not protocol.results.empty:
         files["protocol_results.csv"] = protocol.results.to_csv(index=False).encode("utf-8")
+    groups = getattr(result, "groups", None)
+    if groups is not None and not groups.empty:
+        files["groups.csv"] = groups.to_csv(index=False).encode("utf-8")
     from swimlab.io.bundle import _atomic_write_bytes
 
     out.mkdir(parents=True, exist_ok=True)
@@ -295,6 +298,15 @@ def _result_lines(result) -> list[str]:
     led by its protocol's name, then why any protocol result was not computed, then the flags.
     """
     lines = []
+    groups = getattr(result, "groups", None)
+    if groups is not None and not groups.empty:
+        from swimlab.checks import GROUP_CAVEAT
+
+        for g in groups.itertuples(index=False):
+            lines.append(f"  WARNING group {g.group_id}: {g.n_fish} fish ({g.fish_ids}) swum together in chamber "
+                         f"{g.chamber}, {g.mass_g:g} g in all; fatigue definition {g.fatigue_definition}. MO2 is the "
+                         "group's; per kg and per fish it is per capita.")
+        lines.append(f"  WARNING {GROUP_CAVEAT}")
     for row in result.results.itertuples(index=False):
         if row.value != row.value:  # NaN: nothing to print
             continue

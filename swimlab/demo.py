@@ -8,8 +8,9 @@ reader can compare what swimlab recovers with what was put in.
 
 Besides the four step tests of :data:`TRIALS`, :data:`PROTOCOL_DEMOS` holds one trial of each
 protocol beyond the step test: a ramp test, six fixed-speed endurance swims (some fish still
-swimming at the limit), a repeat swim pair of one fish, a post-exercise recovery (EPOC) and a
-step test of a labriform swimmer with gait events and tail-beat records.
+swimming at the limit), a repeat swim pair of one fish, a post-exercise recovery (EPOC), a
+step test of a labriform swimmer with gait events and tail-beat records, and a group trial (four
+juveniles swum together in one respirometer).
 
 Run ``python -m swimlab.demo demo_sessions`` to (re)write the bundles.
 """
@@ -259,7 +260,7 @@ class ProtocolDemo:
     """Recipe of one demo trial of a protocol beyond the step test.
 
     ``kind`` picks the builder: ``ramp``, ``endurance``, ``first_swim``, ``repeat``,
-    ``recovery`` or ``gait``; ``params`` holds what that builder needs.
+    ``recovery``, ``gait`` or ``group``; ``params`` holds what that builder needs.
     """
 
     name: str
@@ -355,6 +356,19 @@ PROTOCOL_DEMOS = (
               "two. Tail beats counted from video over 20 s at each step.",
         params={"speeds_cm_s": (10, 17, 24, 31, 38, 45), "fatigue_fraction": 0.5, "rest_s": 3600.0,
                 "mo2_params": (60.0, 3.0)},
+    ),
+    ProtocolDemo(
+        name="bw26-g01-group", session_id="bw26-g01-group",
+        title="BW-26 trout G01: four juveniles swum together (group trial), step Ucrit",
+        kind="group", fish_id="BW26-G01", species=TROUT, mass_g=61.0, length_cm=17.5, depth_cm=3.8, width_cm=1.9,
+        seed=2661, operator="B. Student",
+        notes="Four juvenile trout swum together in tunnel 1 (a group trial). The group's fatigue was called when "
+              "half the group had met the fatigue criterion; MO2 is the group's, given per capita.",
+        params={"speeds_cm_s": (15, 25, 35, 45, 55, 65), "rest_s": 3600.0, "mo2_params": (95.0, 2.6),
+                "fish": (("BW26-G01a", 58.0, 17.2), ("BW26-G01b", 63.0, 17.8), ("BW26-G01c", 60.0, 17.4),
+                         ("BW26-G01d", 64.0, 18.0)),
+                "fatigue": {"BW26-G01a": (5, 0.4), "BW26-G01b": (6, 0.3), "BW26-G01c": (6, 0.6)},
+                "fatigue_definition": "half_group"},
     ),
 )
 """One demo trial of each protocol beyond the step test (and a repeat pair, and gait records)."""
@@ -463,6 +477,52 @@ def _gait_records(demo: ProtocolDemo, rest_s: float) -> tuple[list[dict], list[d
     return events, records, truth
 
 
+def _group_demo(demo: ProtocolDemo, day: int) -> tuple[Session, dict[str, bytes], dict[str, Any]]:
+    """A step test of fish swum together: the simulator's fish is the group, its mass the summed mass.
+
+    Every fish has the same mass-specific MO2 (the truth), so the group's MO2 per kg of summed
+    mass is that curve, and its MO2 per fish is the group's over the number of fish.
+    """
+    prm = demo.params
+    speeds = tuple(u / 100.0 for u in prm["speeds_cm_s"])
+    rest, step = prm["rest_s"], 1200.0
+    total = sum(m for _, m, _ in prm["fish"])
+    kwargs = {**_sim_kwargs(demo, day), "fish_mass_g": total}
+    simulated = sim.simulate_trial(seed=demo.seed, speeds_m_s=(0.05, *speeds),
+                                   step_duration_s=(rest,) + (step,) * len(speeds), mo2_model="exponential",
+                                   mo2_params=prm["mo2_params"], **kwargs)
+    fatigue_at = {fid: rest + (k - 1 + frac) * step for fid, (k, frac) in prm["fatigue"].items()}
+    from swimlab.session import group_fatigue_time_s
+
+    group_fatigue = group_fatigue_time_s(prm["fatigue_definition"], list(fatigue_at.values()), len(prm["fish"]))
+    events = [{"time_s": rest, "kind": "note", "fish_id": demo.fish_id, "description": "Step test of the group started"}]
+    events += [{"time_s": t, "kind": "fatigue", "fish_id": fid,
+                "description": "Rested on the rear grid 10 s; did not resume after three taps"}
+               for fid, t in sorted(fatigue_at.items(), key=lambda kv: kv[1])]
+    events.append({"time_s": group_fatigue + 30.0, "kind": "note", "fish_id": demo.fish_id,
+                   "description": "Half the group fatigued: speed lowered to 5 cm/s for every fish"})
+    protocol = {"type": "step_ucrit", "start_s": rest, "fatigue_time_s": group_fatigue,
+                "steps": [{"speed_cm_s": float(u), "duration_min": step / 60} for u in prm["speeds_cm_s"]]}
+    doc, sha = _common(demo, simulated, protocol, sorted(events, key=lambda e: e["time_s"]), day)
+    doc["fish"] = [{"fish_id": fid, "species": demo.species, "chamber": "A", "mass_g": m, "total_length_cm": length,
+                    "body_depth_cm": round(length * 0.217, 1), "body_width_cm": round(length * 0.108, 1),
+                    "sex": "unknown"} for fid, m, length in prm["fish"]]
+    doc["groups"] = [{"group_id": demo.fish_id, "chamber": "A", "fish_ids": [fid for fid, _, _ in prm["fish"]],
+                      "fatigue_definition": prm["fatigue_definition"]}]
+    session = Session.from_json_dict(doc)
+    k_steps = len(speeds)
+    g_step = int((group_fatigue - rest) // step) + 1
+    frac = (group_fatigue - rest - (g_step - 1) * step) / step
+    truth = {"protocol": "step_ucrit (group trial)", "group_id": demo.fish_id, "n_fish": len(prm["fish"]),
+             "summed_mass_g": total, "mo2_model": "exponential", "mo2_params": list(prm["mo2_params"]),
+             "mo2_units": "mg O2 kg-1 h-1 per capita (every fish the same), speed in m/s",
+             "fish_fatigue_time_s": fatigue_at, "fatigue_definition": prm["fatigue_definition"],
+             "group_fatigue_time_s": group_fatigue,
+             "ucrit_set_m_s": speeds[g_step - 2] + frac * (speeds[g_step - 1] - speeds[g_step - 2]),
+             "n_steps": k_steps, "steps": simulated.truth.steps.to_dict(orient="list")}
+    return session, {sha: simulated.csv_bytes}, truth
+
+
 def build_protocol_demo(demo: ProtocolDemo) -> tuple[Session, dict[str, bytes], dict[str, Any]]:
     """Simulate one protocol demo and return its session, raw files and truth."""
     day = 10 + demo.seed % 20
@@ -518,6 +578,8 @@ def build_protocol_demo(demo: ProtocolDemo) -> tuple[Session, dict[str, bytes], 
     elif demo.kind == "repeat":
         return _step_demo(demo, day - 1 if day > 10 else day, "repeat_ucrit",
                           {"rest_interval_min": prm["rest_interval_min"], "first_swim_session_id": prm["first"]}, [])
+    elif demo.kind == "group":
+        return _group_demo(demo, day)
     elif demo.kind == "gait":
         events, records, gait_truth = _gait_records(demo, demo.params["rest_s"])
         session, raw, truth = _step_demo(demo, day, "step_ucrit", {}, events, records)

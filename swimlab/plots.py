@@ -263,6 +263,29 @@ def _fish_steps(steps: pd.DataFrame, fish_id: str) -> pd.DataFrame:
     return part.sort_values("corrected_speed_cm_s")
 
 
+GROUP_WARNING = ("Group trial: MO2 per capita (group MO2 ÷ summed mass). Schooling changes the cost of swimming: "
+                 "not comparable with fish swum alone.")
+"""The warning every figure of a group trial carries (see :data:`swimlab.checks.GROUP_CAVEAT`)."""
+
+
+def _group_size(part: pd.DataFrame) -> int:
+    """Fish in the chamber of a step table's rows (1 for a fish alone)."""
+    if "n_fish" not in part or part.empty:
+        return 1
+    values = pd.to_numeric(part["n_fish"], errors="coerce").dropna()
+    return int(values.max()) if len(values) else 1
+
+
+def _mark_group(fig: go.Figure, n_fish: int) -> None:
+    """Put the group-trial warning on a figure, above the plot, and say per capita on the MO2 axis."""
+    if n_fish <= 1:
+        return
+    fig.add_annotation(text=f"⚠ {GROUP_WARNING} ({n_fish} fish)", xref="paper", yref="paper", x=0.0, y=1.0,
+                       xanchor="left", yanchor="bottom", showarrow=False, align="left",
+                       font={"size": 11, "color": "#9a3412"}, bgcolor="#fff7ed", bordercolor="#9a3412", borderwidth=1)
+    fig.update_layout(margin={"t": 90})
+
+
 def speed_mo2_figure(steps: pd.DataFrame, fits: Any | None, fish_id: str, *,
                      measure: pd.DataFrame | None = None, n_curve: int = 120) -> go.Figure:
     """Draw MO2 against corrected speed for one fish with both model fits and their bands.
@@ -325,13 +348,16 @@ def speed_mo2_figure(steps: pd.DataFrame, fits: Any | None, fish_id: str, *,
                                      line={"color": colour, "width": 3 if chosen else 2,
                                            "dash": "solid" if name == "exponential" else "dash"},
                                      hovertemplate="%{x:.1f} cm/s<br>%{y:.1f} mg O2/kg/h<extra>" + name + "</extra>"))
+    n_fish = _group_size(part)
+    who = f"group {fish_id} ({n_fish} fish, per capita)" if n_fish > 1 else f"fish {fish_id}"
     fig.update_layout(
-        title={"text": f"MO2 against corrected speed – fish {fish_id}", "font": {"size": 14}},
+        title={"text": f"MO2 against corrected speed – {who}", "font": {"size": 14}},
         xaxis={"title": "Corrected speed [cm/s]", "rangemode": "tozero"},
-        yaxis={"title": "MO2 [mg O2/kg/h]", "rangemode": "tozero"},
+        yaxis={"title": "MO2 per capita [mg O2/kg/h]" if n_fish > 1 else "MO2 [mg O2/kg/h]", "rangemode": "tozero"},
         template="plotly_white", height=420, legend={"orientation": "h", "y": -0.2},
         margin={"l": 60, "r": 20, "t": 50, "b": 40},
     )
+    _mark_group(fig, n_fish)
     return fig
 
 
@@ -354,13 +380,16 @@ def cot_figure(steps: pd.DataFrame, results: pd.DataFrame | None, fish_id: str) 
         cm_s = value * 100.0 if unit.strip() in ("m/s", "m s-1") else value
         fig.add_vline(x=cm_s, line={"color": "#1e8449", "dash": "dash", "width": 2},
                       annotation_text=f"Uopt {cm_s:.1f} cm/s", annotation_position="top")
+    n_fish = _group_size(part)
+    who = f"group {fish_id} ({n_fish} fish, per capita)" if n_fish > 1 else f"fish {fish_id}"
     fig.update_layout(
-        title={"text": f"Cost of transport – fish {fish_id}", "font": {"size": 14}},
+        title={"text": f"Cost of transport – {who}", "font": {"size": 14}},
         xaxis={"title": "Corrected speed [cm/s]", "rangemode": "tozero"},
         yaxis={"title": "Cost of transport [mg O2/kg/km]", "rangemode": "tozero"},
         template="plotly_white", height=420, legend={"orientation": "h", "y": -0.2},
         margin={"l": 60, "r": 20, "t": 50, "b": 40},
     )
+    _mark_group(fig, n_fish)
     return fig
 
 

@@ -93,6 +93,7 @@ PART_LABELS = {
     "recovery": "Post-exercise recovery (EPOC)",
     "gait": "Gait (from the event log)",
     "kinematics": "Kinematics (tail beats)",
+    "group": "Group trial (fish swum together; MO2 per capita)",
 }
 """Heading of each part, as tables, plots and exports name it."""
 
@@ -135,6 +136,13 @@ QUANTITY_LABELS = {
     "kinematics_fs_r2": "Kinematics: frequency–speed line, R²",
     "kinematics_stride_length_line": "Kinematics: stride length from the line (1 / slope)",
     "kinematics_tbf_max": "Kinematics: highest tail-beat frequency",
+    "group_n_fish": "Group trial: fish swum together",
+    "group_mass": "Group trial: summed fish mass",
+    "group_water_volume": "Group trial: water volume (respirometer − summed fish volumes)",
+    "group_fatigue_time": "Group trial: group fatigue after the first step began",
+    "group_mo2_highest_step": "Group trial: highest step-mean group MO2",
+    "group_mo2_per_fish_highest_step": "Group trial: highest step-mean MO2 per fish",
+    "group_mo2_per_kg_highest_step": "Group trial: highest step-mean MO2 per kg (per capita)",
 }
 """Label of each protocol quantity: every label names its protocol, so that no protocol value
 reads as a step-test Ucrit."""
@@ -148,6 +156,8 @@ _TABLE_COLUMNS = {
                        "baseline_mg_kg_h", "excess_mg_kg_h"],
     "gait_steps": ["fish_id", "step", "start_s", "end_s", "speed_cm_s", "swum_s", "bursts", "bursts_per_min",
                    "share_of_ucrit", "share_of_upc"],
+    "group_steps": ["fish_id", "step", "set_speed_cm_s", "corrected_speed_cm_s", "n_fish", "n_phases", "mo2_group_mg_h",
+                    "mo2_per_fish_mg_h", "mo2_per_capita_mg_kg_h"],
     "kinematics": ["fish_id", "step", "speed_cm_s", "tail_beat_count", "window_s", "frequency_hz", "amplitude_cm",
                    "stride_length_cm", "stride_length_bl", "strouhal", "strouhal_efficient", "bainbridge_speed_cm_s",
                    "bainbridge_in_range"],
@@ -394,6 +404,7 @@ def analyse_protocol(session: Session, analysis: Analysis, *, first_swim: Analys
     epocs = _recovery(session, analysis, out) if ptype == "recovery" else {}
     gaits = _gait(session, analysis, out)
     kins = _kinematics(session, analysis, out)
+    _group(session, analysis, out)
     tables = {name: pd.DataFrame(rows, columns=_TABLE_COLUMNS[name]) for name, rows in out.tables.items()}
     result = ProtocolResults(
         protocol=ptype,
@@ -470,6 +481,55 @@ def _fatigue_events(session: Session, fish_id: str) -> list[tuple[int, float]]:
     single = len(session.fish) == 1
     return [(i, e.time_s) for i, e in enumerate(session.events)
             if e.kind == "fatigue" and (e.fish_id == fish_id or (single and not e.fish_id))]
+
+
+# --------------------------------------------------------------------------------------------
+# Group trial
+# --------------------------------------------------------------------------------------------
+
+
+def _group(session: Session, analysis: Analysis, out: _Collector) -> None:
+    """Group MO2 and per-capita MO2 (per fish, per kg) of each group trial, step by step.
+
+    The group's MO2 [mg O2 h⁻¹] is the chamber's uptake (the water volume is the respirometer's
+    minus the summed fish volumes); per fish it is that over the number of fish, per kg over the
+    summed mass. Every row carries :data:`swimlab.checks.GROUP_CAVEAT`'s point in its note.
+    """
+    groups = getattr(analysis, "groups", None)
+    if groups is None or groups.empty:
+        return
+    steps = analysis.steps
+    caveat = "group trial: schooling changes swimming cost; not comparable with fish swum alone"
+    for g in groups.itertuples(index=False):
+        gid = str(g.group_id)
+        definition = str(g.fatigue_definition).replace("_", " ")
+        out.add("group", gid, "group_n_fish", float(g.n_fish), "-", f"fish {g.fish_ids} in chamber {g.chamber}",
+                note=caveat)
+        out.add("group", gid, "group_mass", float(g.mass_g), "g", "sum of the fish's masses", note=caveat)
+        out.add("group", gid, "group_water_volume", float(g.water_volume_l), "L",
+                "respirometer volume − Σ fish mass / fish density", note=caveat)
+        if np.isfinite(g.fatigue_time_s):
+            out.add("group", gid, "group_fatigue_time", (float(g.fatigue_time_s) - session.protocol.start_s) / S_PER_MIN,
+                    "min", f"fatigue definition: {definition} (from {g.fatigue_from})", note=caveat)
+        own = steps[steps["fish_id"].astype(str) == gid] if steps is not None and not steps.empty else pd.DataFrame()
+        if own.empty:
+            continue
+        for r in own.itertuples(index=False):
+            out.row("group_steps", fish_id=gid, step=int(r.step), set_speed_cm_s=r.set_speed_cm_s,
+                    corrected_speed_cm_s=r.corrected_speed_cm_s, n_fish=int(g.n_fish), n_phases=int(r.n_phases),
+                    mo2_group_mg_h=r.mo2_mg_h, mo2_per_fish_mg_h=r.mo2_per_fish_mg_h,
+                    mo2_per_capita_mg_kg_h=r.mo2_mg_kg_h)
+        swum = own[own["n_phases"] > 0]
+        if swum.empty:
+            continue
+        top = swum.loc[swum["mo2_mg_h"].idxmax()]
+        at = f"step {int(top['step'])}, {top['set_speed_cm_s']:g} cm/s set"
+        out.add("group", gid, "group_mo2_highest_step", float(top["mo2_mg_h"]), "mg O2 h-1",
+                f"group MO2, mean of the step's accepted phases ({at})", note=caveat)
+        out.add("group", gid, "group_mo2_per_fish_highest_step", float(top["mo2_per_fish_mg_h"]), "mg O2 h-1",
+                f"group MO2 / {int(g.n_fish)} fish ({at})", note=caveat)
+        out.add("group", gid, "group_mo2_per_kg_highest_step", float(top["mo2_mg_kg_h"]), "mg O2 kg-1 h-1",
+                f"group MO2 / {g.mass_g:g} g summed mass ({at})", note=caveat)
 
 
 # --------------------------------------------------------------------------------------------

@@ -182,6 +182,23 @@ REFERENCES = {
         "Taylor, G. K., Nudds, R. L. & Thomas, A. L. R. (2003). Flying and swimming animals cruise at a Strouhal "
         "number tuned for high power efficiency. Nature 425, 707–711."
     ),
+    "Herskin & Steffensen 1998": (
+        "Herskin, J. & Steffensen, J. F. (1998). Energy savings in sea bass swimming in a school: measurements of "
+        "tail beat frequency and oxygen consumption at different swimming speeds. Journal of Fish Biology 53, "
+        "366–376."
+    ),
+    "Zhang & Lauder 2023": (
+        "Zhang, Y. & Lauder, G. V. (2023). Energy conservation by collective movement in schooling fish. eLife 12, "
+        "RP90352."
+    ),
+    "Fieller 1954": (
+        "Fieller, E. C. (1954). Some problems in interval estimation. Journal of the Royal Statistical Society, "
+        "Series B 16, 175–185."
+    ),
+    "Beamish 1978": (
+        "Beamish, F. W. H. (1978). Swimming capacity. In Fish Physiology, vol. 7 (ed. W. S. Hoar & D. J. Randall), "
+        "pp. 101–187. Academic Press."
+    ),
     "Welch 1947": (
         "Welch, B. L. (1947). The generalization of 'Student's' problem when several different population variances "
         "are involved. Biometrika 34, 28–35."
@@ -364,7 +381,8 @@ class _Facts:
         self.session = session
         self.analysis = analysis
         self.settings = analysis.settings
-        self.fish_ids = [f.fish_id for f in session.fish]
+        self.fish_ids = session.unit_ids()  # fish, and groups of fish swum together
+        self.groups = _frame(getattr(analysis, "groups", None))
         self.results = _frame(analysis.results)
         self.steps = _frame(analysis.steps)
         self.measure = _frame(analysis.measure)
@@ -388,7 +406,7 @@ class _Facts:
         if f.empty:
             return f
         where = f["where"].fillna("").astype(str)
-        return f[where.str.fullmatch(rf"fish {re.escape(str(fish_id))}(\b.*)?")]
+        return f[where.str.fullmatch(rf"(fish|group) {re.escape(str(fish_id))}(\b.*)?")]
 
     def has_flag(self, code: str, fish_id: str | None = None) -> bool:
         f = self.flags if fish_id is None else self.fish_flags(fish_id)
@@ -414,7 +432,27 @@ class _Facts:
     def fits(self, fish_id: str) -> Any:
         return (self.analysis.fits or {}).get(fish_id)
 
+    def is_group(self, unit_id: str) -> bool:
+        """Whether ``unit_id`` names a group of fish swum together."""
+        g = self.groups
+        return bool(not g.empty and "group_id" in g and (g["group_id"].astype(str) == str(unit_id)).any())
+
+    def group_row(self, group_id: str) -> dict[str, Any]:
+        g = self.groups
+        if g.empty or "group_id" not in g:
+            return {}
+        hit = g[g["group_id"].astype(str) == str(group_id)]
+        return {} if hit.empty else hit.iloc[0].to_dict()
+
+    def who(self, unit_id: str) -> str:
+        """"Fish X", or "Group X (n fish swum together; MO₂ per capita)"."""
+        if self.is_group(unit_id):
+            return f"Group {unit_id} ({int(self.group_row(unit_id)['n_fish'])} fish swum together; MO₂ per capita)"
+        return f"Fish {unit_id}"
+
     def fish_row(self, fish_id: str) -> dict[str, Any]:
+        if self.is_group(fish_id):  # a group's chamber: summed volume and blocking
+            return self.group_row(fish_id)
         t = self.fish_table
         if t.empty or "fish_id" not in t:
             return {}
@@ -631,8 +669,17 @@ def _m_animals(f: _Facts) -> str:
         when.append(f"the photoperiod was {c.photoperiod}")
     if when:
         text += " " + _sentence(_join(when)) + "."
-    if len({fish.chamber for fish in s.fish}) < n:
-        text += " Several fish shared one respirometer; MO₂ is given per capita."
+    for g in s.groups:
+        definition = {"first_fish": "when the first fish met the fatigue criterion",
+                      "half_group": "when half the fish (rounded up) had met the fatigue criterion",
+                      "last_fish": "when the last fish met the fatigue criterion",
+                      "stated": f"as stated: {g.fatigue_description}"}.get(g.fatigue_definition or "", NOT_RECORDED)
+        members = [x for x in s.fish if x.fish_id in g.fish_ids]
+        text += (f" Fish {_join(g.fish_ids)} were swum together as group {g.group_id} in chamber {g.chamber} "
+                 f"({_n(len(members), 'fish', 'fish')}, {format_entered(sum(x.mass_g for x in members), 'g')} in all); "
+                 f"the group's fatigue was called {definition}. Its MO₂ was computed with the fish's summed mass and "
+                 "volume, and is given as group MO₂ and per capita (per fish, and per kg of the summed mass). "
+                 + checks.GROUP_CAVEAT)
     return text
 
 
@@ -1880,6 +1927,7 @@ PROTOCOL_SOURCES = {
     "recovery": "Lee et al. 2003",
     "gait": "Drucker & Jensen 1996",
     "kinematics": "Bainbridge 1958; Taylor et al. 2003",
+    "group": "Herskin & Steffensen 1998; Zhang & Lauder 2023",
 }
 """References of each protocol part (keys of :data:`REFERENCES`)."""
 
@@ -2005,6 +2053,14 @@ _PART_TABLES: dict[str, tuple[str, list[tuple[str, Any, Any]], str]] = {
         ("U / Up–c", "share_of_upc", _num(2))],
         "Gait from the event log: bursts per minute of swimming at each step (none counted after fatigue), and "
         "blocking-corrected speed as shares of Ucrit and of the gait transition speed Up–c."),
+    "group": ("group_steps", [
+        ("Group", "fish_id", str), ("Step", "step", _int_fmt), ("U set\n[cm/s]", "set_speed_cm_s", _num()),
+        ("U corrected\n[cm/s]", "corrected_speed_cm_s", _num()), ("Fish", "n_fish", _int_fmt), ("n", "n_phases", _int_fmt),
+        ("Group MO₂\n[mg O₂ h⁻¹]", "mo2_group_mg_h", _num()), ("Per fish\n[mg O₂ h⁻¹]", "mo2_per_fish_mg_h", _num()),
+        ("Per kg\n[mg O₂ kg⁻¹ h⁻¹]", "mo2_per_capita_mg_kg_h", _num())],
+        "Group trial: MO₂ of the group at each step (mean of the accepted phases), per fish and per kg of the summed "
+        "mass. Per-capita values of fish swum together are not comparable with fish swum alone: schooling changes "
+        "the cost of swimming (Herskin & Steffensen 1998; Zhang & Lauder 2023)."),
     "kinematics": ("kinematics", [
         ("Fish", "fish_id", str), ("Step", "step", _int_fmt), ("U\n[cm/s]", "speed_cm_s", _num()),
         ("Beats", "tail_beat_count", _int_fmt), ("Window\n[s]", "window_s", _num()), ("f\n[Hz]", "frequency_hz", _num()),
@@ -2154,7 +2210,7 @@ def _result_sentences(f: _Facts) -> list[str]:
             parts.append("the fitted curve gives no optimal speed within the tested speeds")
         if parts:
             text = "; ".join(parts)
-            out.append(f"Fish {fid}: {text}.")
+            out.append(f"{f.who(fid)}: {text}.")
     return out
 
 
@@ -2200,6 +2256,10 @@ def session_report(session: Session, analysis: Any, *, status: Any = None, audit
                      "blocks": [b for h, t in methods_paragraphs(session, f) for b in ({"kind": "h3", "text": h}, {"kind": "p", "text": t})]})
 
     results_blocks: list[dict] = []
+    if session.groups:
+        results_blocks.append(_box("warning", "Group trial", [
+            f"{_join([g.group_id for g in session.groups])}: several fish swum together in one respirometer. The "
+            "chamber's MO₂ is the group's; the values per kg and per fish are per capita. " + checks.GROUP_CAVEAT]))
     sentences = _result_sentences(f)
     if sentences:
         results_blocks += [{"kind": "p", "text": s} for s in sentences]
@@ -2218,6 +2278,17 @@ def session_report(session: Session, analysis: Any, *, status: Any = None, audit
          ("Volume\nratio", "volume_ratio", _num())],
         "Table 1. Fish and their geometry in the working section; the volume ratio is (respirometer − fish volume) / "
         "fish volume.", nowrap=["Fish"]))
+    if not f.groups.empty:
+        results_blocks.append(_display(
+            f.groups,
+            [("Group", "group_id", str), ("Chamber", "chamber", str), ("Fish", "fish_ids", str),
+             ("Mass\n[g]", "mass_g", format_entered), ("Water\n[L]", "water_volume_l", _num()),
+             ("Volume\nratio", "volume_ratio", _num()),
+             ("Blocking\nratio [%]", lambda r: r.get("blocking_ratio") * 100 if not _is_missing(r.get("blocking_ratio")) else None, _num(2)),
+             ("Fatigue definition", lambda r: str(r.get("fatigue_definition") or "").replace("_", " "), str)],
+            "Table 1b. Group trials: fish swum together in one chamber. Mass is the sum of the fish's masses; the "
+            "water volume is the respirometer's minus the summed fish volumes; the blocking ratio sums the fish's "
+            "frontal areas (their solid-blocking corrections are added, to first order).", nowrap=["Group"]))
     if not f.steps.empty:
         results_blocks.append(_display(
             f.steps,
@@ -2229,7 +2300,10 @@ def session_report(session: Session, analysis: Any, *, status: Any = None, audit
              ("COT\nnet", "cot_net_mg_kg_km", _num())],
             "Table 2. Speed steps: set and blocking-corrected speed U, Reynolds number Re on total length, MO₂ "
             "[mg O₂ kg⁻¹ h⁻¹] as mean, SD and number n of accepted phases, and gross and net cost of transport "
-            "[mg O₂ kg⁻¹ km⁻¹].", nowrap=["Fish"]))
+            "[mg O₂ kg⁻¹ km⁻¹]." + (" For a group trial (the row's “Fish” is the group) MO₂ and COT are per capita, "
+                                    "U in BL/s and Re use the fish's mean length, and the blocking correction sums the "
+                                    "fish's; not comparable with fish swum alone." if session.groups else ""),
+            nowrap=["Fish"]))
     if not f.results.empty:
         results_blocks.append(_display(
             f.results,
@@ -2391,13 +2465,16 @@ def study_table(items: Sequence[tuple[Session, Any]]) -> pd.DataFrame:
     rows = []
     for session, analysis in _check_items(items):
         f = _Facts(session, analysis)
-        for fish in session.fish:
-            fid = fish.fish_id
+        for unit in session.units():
+            fid = unit.unit_id
+            fish = unit.fish[0]
             row: dict[str, Any] = {
                 "session_id": session.session_id, "study": session.study, "title": session.title,
                 "trial_date": session.trial_date.isoformat() if session.trial_date else "",
-                "fish_id": fid, "species": fish.species, "sex": fish.sex, "chamber": fish.chamber,
-                "mass_g": fish.mass_g, "total_length_cm": fish.total_length_cm,
+                "fish_id": fid, "unit": "group" if unit.is_group else "fish", "n_fish": unit.n_fish,
+                "group_fish_ids": ", ".join(x.fish_id for x in unit.fish) if unit.is_group else "",
+                "species": ", ".join(sorted({x.species for x in unit.fish})), "sex": "" if unit.is_group else fish.sex,
+                "chamber": unit.chamber, "mass_g": unit.mass_g, "total_length_cm": unit.total_length_cm,
                 "temperature_c": session.water.temperature_c, "salinity": session.water.salinity,
                 "protocol": session.protocol.type,
                 "n_phases": f.phase_counts(fid)["total"], "n_phases_used": f.phase_counts(fid)["used"],
@@ -2437,6 +2514,8 @@ def _spread_table(table: pd.DataFrame) -> pd.DataFrame:
     rows = []
     if len(table) and "protocol" in table:
         table = table[table["protocol"].isin(SPREAD_PROTOCOLS)]
+    if len(table) and "unit" in table:  # a group trial's per-capita values are not one fish's
+        table = table[table["unit"] != "group"]
     species = table["species"].replace("", "species not recorded") if len(table) else pd.Series(dtype=str)
     for sp, part in table.groupby(species, sort=True):
         for quantity, (column, unit) in _STUDY_QUANTITIES.items():
@@ -2457,7 +2536,9 @@ def group_curve_data(items: Sequence[tuple[Session, Any]]) -> pd.DataFrame:
     """Accepted single-phase MO2 against corrected speed for every fish (the group curve's data).
 
     Fish ids are prefixed with their session id so that the same label in two sessions stays two
-    fish. Columns ``fish_id``, ``species``, ``speed_m_s`` [m/s], ``mo2_mg_kg_h``.
+    fish. Columns ``fish_id``, ``species``, ``speed_m_s`` [m/s], ``mo2_mg_kg_h``. Group trials are
+    left out (their per-capita MO2 is not one fish's, and schooling changes cost); see
+    :func:`group_trials_left_out`.
     """
     parts = []
     for session, analysis in _check_items(items):
@@ -2469,6 +2550,8 @@ def group_curve_data(items: Sequence[tuple[Session, Any]]) -> pd.DataFrame:
             continue
         species = {fish.fish_id: fish.species for fish in session.fish}
         for fid in f.fish_ids:
+            if f.is_group(fid):
+                continue
             own = m[(m["fish_id"].astype(str) == str(fid)) & _bool_col(m, "used", True) & (m["step"] > 0)]
             steps = s[s["fish_id"].astype(str) == str(fid)]
             speed = dict(zip(steps["step"], steps["corrected_speed_cm_s"].fillna(steps["set_speed_cm_s"]) / 100.0, strict=True))
@@ -2480,6 +2563,15 @@ def group_curve_data(items: Sequence[tuple[Session, Any]]) -> pd.DataFrame:
     if not parts:
         return pd.DataFrame(columns=["fish_id", "species", "speed_m_s", "mo2_mg_kg_h"])
     return pd.concat(parts, ignore_index=True)
+
+
+def group_trials_left_out(items: Sequence[tuple[Session, Any]]) -> list[str]:
+    """Group trials of ``items`` that the spread and the group curve leave out, one phrase each."""
+    out = []
+    for session, _ in _check_items(items):
+        for g in session.groups:
+            out.append(f"group {g.group_id} of session {session.session_id} ({len(g.fish_ids)} fish swum together)")
+    return out
 
 
 def _group_figure(data: pd.DataFrame, curve: Any):
@@ -2585,9 +2677,15 @@ def study_report(items: Sequence[tuple[Session, Any]], *, title: str | None = No
          ("Protocol", "protocol", str), ("Temperature [°C]", "temperature", format_entered)],
         "Table 1. Sessions of the study."))
 
-    results_blocks = [_display(
+    left_out = group_trials_left_out(items)
+    results_blocks = [_box("warning", "Group trials kept apart", [
+        f"{_sentence(_join(left_out))}: per-capita values of fish swum together. They are listed in Table 2 as "
+        "groups, but left out of the spread between fish and of the group curves, which hold fish swum alone. "
+        + checks.GROUP_CAVEAT])] if left_out else []
+    results_blocks += [_display(
         table,
-        [("Fish", "fish_id", str), ("Protocol", "protocol", str), ("Mass\n[g]", "mass_g", format_entered),
+        [("Fish", lambda r: r["fish_id"] + (f" (group of {int(r['n_fish'])})" if r.get("unit") == "group" else ""), str),
+         ("Protocol", "protocol", str), ("Mass\n[g]", "mass_g", format_entered),
          ("T\n[°C]", "temperature_c", format_entered),
          ("Ucrit\n[cm/s]", "ucrit_cm_s", _num()), ("Ucrit\n[BL/s]", "ucrit_bl_s", _num()),
          ("SMR", "smr_mg_kg_h", _num()), ("MMR", "mmr_mg_kg_h", _num()),

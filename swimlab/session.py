@@ -21,7 +21,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_valida
 
 from swimlab.errors import InputError
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 
 PROTOCOL_TYPES = ("step_ucrit", "ramp", "endurance", "repeat_ucrit", "recovery")
 PROTOCOL_LABELS = {
@@ -44,6 +44,21 @@ EVENT_KINDS = (
     "note",
 )
 STATUSES = ("draft", "submitted", "approved", "returned")
+GROUP_FATIGUE_DEFINITIONS = {
+    "first_fish": "the group's fatigue is the first fish of the group to meet the fatigue criterion",
+    "half_group": "the group's fatigue is when half the fish (rounded up) have met the fatigue criterion",
+    "last_fish": "the group's fatigue is the last fish of the group to meet the fatigue criterion",
+    "stated": "the group's fatigue as the operator states it (give the description)",
+}
+"""How a group trial's fatigue is called (a recorded field of every group; it changes Ucrit)."""
+GROUP_PROTOCOLS = ("step_ucrit",)
+"""Protocol types a group trial can be analysed in (the step test); others are refused at entry."""
+GAITS = {
+    "pectoral": "pectoral-fin (labriform) swimming",
+    "steady_caudal": "steady body–caudal-fin swimming",
+    "burst_and_coast": "burst-and-coast (unsteady, burst-assisted) swimming",
+}
+"""Gaits an event can record as the gait the fish swims in from then on."""
 RECOVERY_BASELINES = {
     "pre_exercise": "routine MO2 of the measure phases before the exercise began",
     "smr": "standard metabolic rate (entered, or this session's SMR)",
@@ -228,6 +243,26 @@ class Event(_Model):
     fish_id: str = ""
     description: str = ""
     count: int | None = Field(None, ge=0)
+    gait: Literal["pectoral", "steady_caudal", "burst_and_coast"] | None = Field(
+        None, description="For a gait_change: the gait the fish swims in from this time on (see GAITS)"
+    )
+
+
+class FishGroup(_Model):
+    """Several fish swum together in one respirometer (a group trial).
+
+    The chamber's MO2 is the group's: it is computed with the fish's summed mass and volume and
+    given per capita (per fish and per kg). The fatigue definition is required: whether the
+    group fatigued with its first fish, half of it or its last fish changes the group's Ucrit.
+    """
+
+    group_id: str = Field(min_length=1, description="Label of the group (not a fish id)")
+    chamber: str = Field(min_length=1, description="Oxygen channel of the respirometer the group shares")
+    fish_ids: list[str] = Field(default_factory=list, description="The fish swum together (two or more)")
+    fatigue_definition: Literal["first_fish", "half_group", "last_fish", "stated"] | None = Field(
+        None, description="How the group's fatigue was called (see GROUP_FATIGUE_DEFINITIONS); required"
+    )
+    fatigue_description: str = Field("", description="The stated definition, when fatigue_definition is 'stated'")
 
 
 class TailBeatRecord(_Model):
@@ -286,6 +321,7 @@ class Session(_Model):
     background_method: Literal["none", "constant", "linear", "exponential"] = "linear"
     events: list[Event] = Field(default_factory=list)
     kinematics: list[TailBeatRecord] = Field(default_factory=list)
+    groups: list[FishGroup] = Field(default_factory=list)
     raw_files: list[RawFileRef] = Field(default_factory=list)
     exclusions: list[PhaseExclusion] = Field(default_factory=list)
     settings: dict[str, float | None] = Field(default_factory=dict)
@@ -319,8 +355,79 @@ class Session(_Model):
         return [ref for ref in self.raw_files if ref.role == "trial"]
 
     def fish_by_chamber(self) -> dict[str, Fish]:
-        """Fish keyed by their oxygen channel."""
+        """Fish keyed by their oxygen channel (one fish per chamber; see :meth:`units`)."""
         return {fish.chamber: fish for fish in self.fish}
+
+    def units(self) -> list[AnalysisUnit]:
+        """What each chamber's MO2 belongs to: one fish, or a group of fish swum together.
+
+        In the order of :attr:`fish` (a group where its first fish is listed). A valid session
+        has one unit per chamber.
+        """
+        by_fish = {fid: g for g in self.groups for fid in g.fish_ids}
+        out: list[AnalysisUnit] = []
+        seen: set[str] = set()
+        fish_of = {f.fish_id: f for f in self.fish}
+        for fish in self.fish:
+            group = by_fish.get(fish.fish_id)
+            if group is None:
+                out.append(AnalysisUnit(fish.fish_id, fish.chamber, (fish,), None))
+            elif group.group_id not in seen:
+                seen.add(group.group_id)
+                members = tuple(fish_of[f] for f in group.fish_ids if f in fish_of)
+                out.append(AnalysisUnit(group.group_id, group.chamber, members, group))
+        return out
+
+    def unit_ids(self) -> list[str]:
+        """Ids of :meth:`units`: fish ids, and group ids for fish swum together."""
+        return [u.unit_id for u in self.units()]
+
+    def group_of(self, fish_id: str) -> FishGroup | None:
+        """The group a fish was swum in, or None when it swam alone."""
+        return next((g for g in self.groups if fish_id in g.fish_ids), None)
+
+
+class AnalysisUnit:
+    """One chamber's subject: a single fish or a group (see :meth:`Session.units`).
+
+    Attributes
+    ----------
+    unit_id
+        The fish id, or the group id.
+    chamber
+        The oxygen channel.
+    fish
+        The fish in the chamber.
+    group
+        The :class:`FishGroup`, or None for a fish alone.
+    """
+
+    __slots__ = ("unit_id", "chamber", "fish", "group")
+
+    def __init__(self, unit_id: str, chamber: str, fish: tuple[Fish, ...], group: FishGroup | None):
+        self.unit_id, self.chamber, self.fish, self.group = unit_id, chamber, fish, group
+
+    @property
+    def is_group(self) -> bool:
+        return self.group is not None
+
+    @property
+    def n_fish(self) -> int:
+        return len(self.fish)
+
+    @property
+    def mass_g(self) -> float:
+        """Summed mass of the fish in the chamber. [g]"""
+        return float(sum(f.mass_g for f in self.fish))
+
+    @property
+    def total_length_cm(self) -> float:
+        """Mean total length of the fish in the chamber (body length for BL/s of a group). [cm]"""
+        return float(sum(f.total_length_cm for f in self.fish) / len(self.fish))
+
+    def __repr__(self) -> str:
+        kind = f"group of {self.n_fish}" if self.is_group else "fish"
+        return f"AnalysisUnit({self.unit_id!r}, chamber {self.chamber!r}, {kind})"
 
 
 class Problem(BaseModel):
@@ -450,6 +557,8 @@ def cross_checks(session: Session) -> list[Problem]:
         if cycle.measure_s is None:
             add("protocol.cycle.measure_s", "a cycle schedule needs the measure duration")
 
+    _group_checks(session, add)
+
     chambers = {fish.chamber for fish in session.fish}
     for i, blank in enumerate(session.blanks):
         if blank.slope_mg_l_h is None and blank.raw_file_sha256 is None:
@@ -463,9 +572,13 @@ def cross_checks(session: Session) -> list[Problem]:
     for i, exclusion in enumerate(session.exclusions):
         if exclusion.channel not in chambers:
             add(f"exclusions.{i}.channel", f"no fish uses channel {exclusion.channel!r}")
+    group_ids = [g.group_id for g in session.groups]
     for i, event in enumerate(session.events):
-        if event.fish_id and event.fish_id not in ids:
-            add(f"events.{i}.fish_id", f"no fish with id {event.fish_id!r}; fish are {ids}")
+        if event.fish_id and event.fish_id not in ids and event.fish_id not in group_ids:
+            add(f"events.{i}.fish_id", f"no fish with id {event.fish_id!r}; fish are {ids}"
+                + (f", groups are {group_ids}" if group_ids else ""))
+        if event.gait is not None and event.kind != "gait_change":
+            add(f"events.{i}.gait", f"a gait is recorded on a gait_change event; this event is a {event.kind}")
 
     from swimlab.settings import LabSettings  # local: settings has no session dependency
 
@@ -474,6 +587,112 @@ def cross_checks(session: Session) -> list[Problem]:
     except InputError as exc:
         add("settings", exc.reason)
     return problems
+
+
+def group_fatigue_time_s(definition: str, fatigue_times_s: list[float], n_fish: int) -> float | None:
+    """The group's fatigue time from its fish's fatigue times and the group's definition.
+
+    Parameters
+    ----------
+    definition
+        A key of :data:`GROUP_FATIGUE_DEFINITIONS`.
+    fatigue_times_s
+        Fatigue time of each fish that fatigued (fish still swimming are left out). [s]
+    n_fish
+        Fish in the group. [-]
+
+    Returns
+    -------
+    The first time (``first_fish``), the ⌈n/2⌉-th time (``half_group``), the last time when
+    every fish fatigued (``last_fish``); None when too few fish fatigued, or for ``stated``
+    (the operator's own call: ``protocol.fatigue_time_s``). [s]
+    """
+    times = sorted(float(t) for t in fatigue_times_s)
+    if definition == "first_fish":
+        return times[0] if times else None
+    if definition == "half_group":
+        k = -(-n_fish // 2)
+        return times[k - 1] if len(times) >= k else None
+    if definition == "last_fish":
+        return times[-1] if len(times) >= n_fish else None
+    return None
+
+
+def _group_checks(session: Session, add) -> None:
+    """Problems of group trials: who is in which group, the fatigue definition, shared chambers."""
+    fish_of = {f.fish_id: (i, f) for i, f in enumerate(session.fish)}
+    ids = list(fish_of)
+    in_group: dict[str, int] = {}
+    group_ids: list[str] = []
+    chambers_of_groups: dict[str, int] = {}
+    definitions = sorted(GROUP_FATIGUE_DEFINITIONS)
+    for j, group in enumerate(session.groups):
+        where = f"groups.{j}"
+        if group.group_id in group_ids:
+            add(f"{where}.group_id", f"group id {group.group_id!r} is used more than once")
+        if group.group_id in fish_of:
+            add(f"{where}.group_id", f"group id {group.group_id!r} is also a fish id; give the group its own label")
+        group_ids.append(group.group_id)
+        if group.chamber in chambers_of_groups:
+            add(f"{where}.chamber", f"chamber {group.chamber!r} already holds group "
+                f"{session.groups[chambers_of_groups[group.chamber]].group_id!r}; one group per chamber")
+        chambers_of_groups.setdefault(group.chamber, j)
+        if len(group.fish_ids) < 2:
+            add(f"{where}.fish_ids", f"a group holds two or more fish; got {len(group.fish_ids)}")
+        if len(set(group.fish_ids)) != len(group.fish_ids):
+            add(f"{where}.fish_ids", "names a fish more than once")
+        for fid in group.fish_ids:
+            if fid not in fish_of:
+                add(f"{where}.fish_ids", f"no fish with id {fid!r}; fish are {ids}")
+                continue
+            if fid in in_group and in_group[fid] != j:
+                add(f"{where}.fish_ids", f"fish {fid!r} is already in group "
+                    f"{session.groups[in_group[fid]].group_id!r}; a fish swims in one group")
+            in_group.setdefault(fid, j)
+            i, fish = fish_of[fid]
+            if fish.chamber != group.chamber:
+                add(f"fish.{i}.chamber", f"fish {fid!r} is in group {group.group_id!r} of chamber {group.chamber!r} "
+                    f"but its chamber is {fish.chamber!r}")
+        members = [fish_of[f][1] for f in dict.fromkeys(group.fish_ids) if f in fish_of]
+        if members and sum(f.mass_g for f in members) / 1000.0 >= session.flume.respirometer_volume_l:
+            add(f"{where}.fish_ids", "the group's summed fish volume is not smaller than the respirometer volume")
+        if group.fatigue_definition is None:
+            add(f"{where}.fatigue_definition",
+                f"a group trial needs its fatigue definition, one of {definitions} (e.g. first_fish: the first fish "
+                "to fatigue ends the group's swim)")
+        elif group.fatigue_definition == "stated" and not group.fatigue_description.strip():
+            add(f"{where}.fatigue_description", "a stated fatigue definition needs its description")
+    if session.groups and session.protocol.type not in GROUP_PROTOCOLS:
+        add("groups", f"a group trial can be analysed in the step test ({', '.join(GROUP_PROTOCOLS)}); this session's "
+            f"protocol is {session.protocol.type}: swim each fish alone or use a step test")
+    # fish sharing a chamber must be recorded as one group
+    by_chamber: dict[str, list[str]] = {}
+    for fish in session.fish:
+        by_chamber.setdefault(fish.chamber, []).append(fish.fish_id)
+    for chamber, members in by_chamber.items():
+        if len(members) < 2:
+            continue
+        j = chambers_of_groups.get(chamber)
+        outside = members if j is None else [m for m in members if m not in session.groups[j].fish_ids]
+        for fid in outside:
+            i = fish_of[fid][0]
+            add(f"fish.{i}.chamber", f"fish {members} share chamber {chamber!r}: record fish swum together as a group "
+                "(groups: group id, chamber, fish ids, fatigue definition), or give each fish its own chamber")
+    for chamber in chambers_of_groups:
+        if chamber not in by_chamber:
+            j = chambers_of_groups[chamber]
+            add(f"groups.{j}.chamber", f"no fish uses chamber {chamber!r}")
+    # the group's fatigue time must agree with its fish's fatigue events under its definition
+    p = session.protocol
+    for group in session.groups:
+        if group.fatigue_definition in (None, "stated"):
+            continue
+        times = [e.time_s for e in session.events if e.kind == "fatigue" and e.fish_id in group.fish_ids]
+        derived = group_fatigue_time_s(group.fatigue_definition, times, len(group.fish_ids))
+        if derived is not None and p.fatigue_time_s is not None and abs(derived - p.fatigue_time_s) > 1.0:
+            add("protocol.fatigue_time_s",
+                f"{p.fatigue_time_s:g} s, but by group {group.group_id!r}'s definition ({group.fatigue_definition}) "
+                f"its fish's fatigue events give {derived:g} s; correct one of them")
 
 
 def step_table(session: Session) -> list[dict[str, float]]:

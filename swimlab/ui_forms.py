@@ -201,6 +201,10 @@ SECTIONS: dict[str, GridSection] = {
             _C("fish_id", "Fish id", "text"),
             _C("description", "Description", "text"),
             _C("count", "Count [-]", "integer"),
+            _C("gait", "Gait from now on", "choice",
+               "For a gait change: the gait the fish swims in from this time (pectoral, steady caudal, "
+               "burst-and-coast). The gait an endurance swim ends in sorts its fatigue curve.",
+               ("", *sm.GAITS)),
         )),
         *([GridSection("kinematics", "Tail beats", "kinematics", sm.TailBeatRecord, True, (
             _C("step", "Step [-]", "integer"),
@@ -211,6 +215,15 @@ SECTIONS: dict[str, GridSection] = {
             _C("frame_rate_hz", "Frame rate [1/s]"),
             _C("amplitude_cm", "Tail-tip amplitude [cm]"),
         ))] if hasattr(sm, "TailBeatRecord") else []),
+        GridSection("groups", "Group trials (fish swum together)", "groups", sm.FishGroup, True, (
+            _C("group_id", "Group id", "text", "A label for the group (not one of the fish ids)."),
+            _C("chamber", "Chamber", "text", "The oxygen channel of the respirometer the fish share."),
+            _C("fish_ids", "Fish ids", "list", "The fish swum together, separated by commas (two or more)."),
+            _C("fatigue_definition", "Group fatigue", "choice",
+               "Required. When the group's swim ended: first_fish (the first fish to fatigue), half_group (half the "
+               "fish), last_fish (every fish), or stated (describe it).", ("", *sm.GROUP_FATIGUE_DEFINITIONS)),
+            _C("fatigue_description", "Stated definition", "text", "When the group fatigue is 'stated'."),
+        )),
     ]
 }
 """Every grid of the set-up page, in page order."""
@@ -317,6 +330,10 @@ def _cell_from_value(column: GridColumn, value: Any) -> Any:
             return dt.date.fromisoformat(str(value))
         except ValueError:
             return None
+    if column.kind == "list":
+        if isinstance(value, list | tuple):
+            return ", ".join(str(v) for v in value)
+        return "" if value is None else str(value)
     return "" if value is None else str(value)
 
 
@@ -372,6 +389,8 @@ def _value_from_cell(column: GridColumn, value: Any) -> Any:
             text = value.strip().replace(",", ".") if re.fullmatch(r"\s*-?\d+,\d+\s*", value) else value.strip()
             return text  # the model parses numbers in strings, or says what is wrong
         return float(value)
+    if column.kind == "list":  # comma- or semicolon-separated labels
+        return [part.strip() for part in re.split(r"[,;]", str(value)) if part.strip()]
     if column.kind == "date":
         if isinstance(value, pd.Timestamp | dt.datetime):
             return value.date().isoformat()

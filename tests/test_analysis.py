@@ -221,12 +221,12 @@ def test_demo_struggling_trial_has_welfare_flags_first_and_a_kept_exclusion(demo
     assert result.result("BW26-T04", "smr") == pytest.approx(truth["mo2_params"][0], rel=0.10)
 
 
-def test_fish_sharing_a_chamber_are_refused_in_words(simulated):
-    # A group trial's uptake belongs to all its fish; analysing it with one fish's mass would be
-    # wrong, so it is refused until per-capita analysis exists.
+def test_fish_sharing_a_chamber_without_a_group_are_refused_at_entry(simulated):
+    # A shared chamber's uptake belongs to all its fish; it is analysed only as a recorded group
+    # (tests/test_group_trials.py), never with one fish's mass.
     _, session, raw = simulated
-    second = session.fish[0].model_copy(update={"fish_id": "F2"})
-    group = session.model_copy(update={"fish": [session.fish[0], second]})
+    data = session.to_json_dict()
+    data["fish"].append({**data["fish"][0], "fish_id": "F2"})
     with pytest.raises(InputError, match="share chamber") as info:
-        analyse(group, raw)
-    assert info.value.field == "fish.chamber"
+        Session.from_json_dict(data)
+    assert info.value.field == "fish.0.chamber"

@@ -8,7 +8,9 @@ malformed bundle is refused with the file and field/row/column named, and nothin
 
 from __future__ import annotations
 
+import csv
 import hashlib
+import io
 import json
 import os
 import shutil
@@ -116,7 +118,7 @@ def test_layout_on_disk(written):
     # raw files are byte for byte what was given (latin-1, decimal commas, header line)
     assert (path / "raw" / "run 1.txt").read_bytes() == TRACE
     doc = json.loads((path / SESSION_JSON).read_text(encoding="utf-8"))
-    assert doc["bundle_format_version"] == 1
+    assert doc["bundle_format_version"] == BUNDLE_FORMAT_VERSION == 2
     manifest = {entry["path"]: entry for entry in doc["files"]}
     assert manifest["raw/run 1.txt"]["sha256"] == hashlib.sha256(TRACE).hexdigest()
     assert manifest["raw/run 1.txt"]["bytes"] == len(TRACE)
@@ -199,7 +201,7 @@ def test_any_text_and_numbers_survive_a_round_trip(tmp_path_factory, title, desc
 def test_committed_schema_equals_the_generated_one():
     committed = schema_path().read_text(encoding="utf-8")
     assert committed == schema_text(bundle_json_schema()), (
-        "swimlab/schema/session-bundle-v1.schema.json is out of date with the session model; "
+        "swimlab/schema/session-bundle-v2.schema.json is out of date with the session model; "
         "run `python -m swimlab schema --write` and commit it"
     )
 
@@ -431,6 +433,42 @@ def test_layout_0_is_upgraded(written):
     assert contents.session == session
     assert contents.raw_files == raw
     assert any("upgraded from bundle layout 0 to 1" in p for p in contents.problems)
+
+
+def _as_layout_1(path: Path) -> None:
+    """Rewrite a bundle in layout 1: no groups, no gait on events, events.csv without its gait column."""
+
+    def change(doc):
+        doc["bundle_format_version"] = 1
+        doc["session"]["schema_version"] = 1
+        doc["session"].pop("groups", None)
+        for event in doc["session"]["events"]:
+            event.pop("gait", None)
+
+    _rewrite_json(path, change)
+    rows = list(csv.reader(io.StringIO((path / "events.csv").read_text(encoding="utf-8"), newline="")))
+    assert rows[0][-1] == "gait"
+    out = io.StringIO()
+    csv.writer(out, lineterminator="\r\n").writerows([row[:-1] for row in rows])
+    (path / "events.csv").write_text(out.getvalue(), encoding="utf-8", newline="")
+
+
+def test_layout_1_is_upgraded_and_its_tables_checked_on_their_own_columns(written):
+    path, session, raw = written
+    _as_layout_1(path)
+    contents = read_bundle(path)
+    assert contents.format_version == 1
+    assert contents.session == session  # nothing to convert: the new fields are empty by default
+    assert any("upgraded from bundle layout 1 to 2" in p for p in contents.problems)
+    assert not any("re-formatted" in p for p in contents.problems)
+
+
+def test_layout_1_table_missing_one_of_its_own_columns_is_still_refused(written):
+    path, session, raw = written
+    _as_layout_1(path)
+    text = (path / "events.csv").read_text(encoding="utf-8")
+    (path / "events.csv").write_text(text.replace(",count", "", 1), encoding="utf-8", newline="")
+    _refused(path, file="events.csv", column="count")
 
 
 def test_layout_0_with_both_masses_is_refused(written):

@@ -564,7 +564,7 @@ def test_gait_without_steps_says_so():
 
 def test_every_quantity_label_names_its_protocol():
     prefix = {"ramp": "Ramp", "endurance": "Endurance", "repeat": "Repeat", "recovery": "Recovery", "gait": "Gait",
-              "kinematics": "Kinematics"}
+              "kinematics": "Kinematics", "group": "Group trial"}
     for quantity, label in QUANTITY_LABELS.items():
         assert label.startswith(prefix[quantity.split("_")[0]]), (quantity, label)
 

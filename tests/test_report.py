@@ -594,7 +594,7 @@ def test_every_demo_session_reports():
         for code in set(analysis.flags["code"]):
             assert code in html, (path.name, code)
     table = report.study_table(items)
-    assert len(table) == sum(len(s.fish) for s, _ in items)
+    assert len(table) == sum(len(s.units()) for s, _ in items)  # one row per fish alone or per group
 
 
 def test_session_without_a_trace_reports_what_is_missing(trial):

@@ -29,7 +29,7 @@ EDITED_ELSEWHERE = {
     # fields a person does not type in that grid: sub-records with grids of their own, or values
     # set by the trace page (raw files, exclusions) and the lab book (ids, settings)
     "trial": {"schema_version", "session_id", "water", "flume", "fish", "protocol", "conditions", "sensor",
-              "blanks", "events", "kinematics", "raw_files", "exclusions", "settings"},
+              "blanks", "events", "kinematics", "groups", "raw_files", "exclusions", "settings"},
     "flume": {"calibration", "characterisation"},
     "protocol": {"type", "steps", "cycle", "fatigue_criterion"},
 }

@@ -13,7 +13,7 @@ checked cell by cell against the JSON, and any disagreement is refused with the 
 column, so that an edit made in a spreadsheet is never silently lost or silently taken.
 
 The layout is versioned (:data:`BUNDLE_FORMAT_VERSION`) and published as a JSON Schema
-(draft 2020-12) in ``swimlab/schema/session-bundle-v1.schema.json``, generated from the
+(draft 2020-12) in ``swimlab/schema/session-bundle-v2.schema.json``, generated from the
 session model by :func:`bundle_json_schema`. Older layouts are upgraded on reading through the
 ordered :data:`UPGRADES`; a newer layout than this swimlab knows is refused. The layout is
 described for people in ``docs/bundle_format.md``.
@@ -56,8 +56,12 @@ from swimlab.session import (
 BUNDLE_FORMAT = "swimlab-session-bundle"
 """Value of ``bundle_format`` in every bundle's ``session.json``."""
 
-BUNDLE_FORMAT_VERSION = 1
+BUNDLE_FORMAT_VERSION = 2
 """The layout this swimlab writes. Readable: 0 (pre-release, upgraded on read) to this."""
+
+COLUMNS_ADDED = {2: {"events.csv": ("gait",)}}
+"""CSV columns a layout added: a table written by an older layout lacks them, and is checked on
+the columns it has (the missing values are the defaults, which the upgrade leaves in place)."""
 
 SESSION_JSON = "session.json"
 RAW_DIR = "raw"
@@ -133,7 +137,7 @@ def bundle_json_schema() -> dict[str, Any]:
     """Return the JSON Schema (draft 2020-12) of ``session.json``, generated from the model.
 
     The session part is :meth:`Session.model_json_schema`; around it go the bundle fields and
-    the file manifest. The committed file ``swimlab/schema/session-bundle-v1.schema.json``
+    the file manifest. The committed file ``swimlab/schema/session-bundle-v2.schema.json``
     must equal this (a test keeps them together); regenerate it with
     ``python -m swimlab schema --write``.
     """
@@ -281,8 +285,23 @@ def _upgrade_0_to_1(doc: dict[str, Any]) -> tuple[dict[str, Any], list[str]]:
     ]
 
 
+def _upgrade_1_to_2(doc: dict[str, Any]) -> tuple[dict[str, Any], list[str]]:
+    """Layout 1 → 2: sessions gained group trials (``groups``) and a gait on events (``gait``).
+
+    Both are optional with empty defaults, so nothing is converted; ``events.csv`` of layout 1
+    has no ``gait`` column and is checked without it.
+    """
+    session = doc.get("session")
+    if isinstance(session, dict):
+        session["schema_version"] = 2
+    doc["bundle_format_version"] = 2
+    return doc, [f"{SESSION_JSON}: upgraded from bundle layout 1 to 2 (group trials and event gaits added; "
+                 "nothing to convert)"]
+
+
 UPGRADES: list[tuple[int, Callable[[dict[str, Any]], tuple[dict[str, Any], list[str]]]]] = [
     (0, _upgrade_0_to_1),
+    (1, _upgrade_1_to_2),
 ]
 """Ordered upgrade steps: (layout version they read, function returning the next version's
 document and notes). Reading applies every step from the bundle's version up to
@@ -698,7 +717,13 @@ def _cells_equal(value: Any, expected: str, found: str) -> bool:
     return False
 
 
-def check_table(name: str, data: bytes, session_document: Mapping[str, Any]) -> bool:
+def _columns_of_layout(name: str, layout: int) -> list[str]:
+    added = {c for version, tables in COLUMNS_ADDED.items() if version > layout for c in tables.get(name, ())}
+    return [c for c in TABLES_BY_NAME[name].columns if c not in added]
+
+
+def check_table(name: str, data: bytes, session_document: Mapping[str, Any], *,
+                layout: int = BUNDLE_FORMAT_VERSION) -> bool:
     """Check one CSV table against the session's JSON document.
 
     Returns ``True`` when the bytes are exactly what swimlab writes, ``False`` when they differ
@@ -709,9 +734,11 @@ def check_table(name: str, data: bytes, session_document: Mapping[str, Any]) -> 
     InputError
         Naming the file, and the row (as counted in the file, the header being row 1) and
         column, on missing or extra columns, a missing or extra row, or a value that differs
-        from the authoritative ``session.json``.
+        from the authoritative ``session.json``. A table of an older ``layout`` is checked on
+        the columns that layout had (:data:`COLUMNS_ADDED`).
     """
     table = TABLES_BY_NAME[name]
+    columns = _columns_of_layout(name, layout)
     try:
         text = data.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
@@ -725,18 +752,18 @@ def check_table(name: str, data: bytes, session_document: Mapping[str, Any]) -> 
             f"is empty; expected a header row with columns {table.columns}", file=name, row=1
         )
     header = [cell.strip() for cell in rows[0]]
-    missing = [c for c in table.columns if c not in header]
-    extra = [c for c in header if c not in table.columns]
+    missing = [c for c in columns if c not in header]
+    extra = [c for c in header if c not in columns]
     if missing:
         raise InputError(
-            f"column is missing; the table's columns are {table.columns}",
+            f"column is missing; the table's columns are {columns}",
             file=name,
             row=1,
             column=missing[0],
         )
     if extra:
         raise InputError(
-            f"column is not part of this table; its columns are {table.columns}",
+            f"column is not part of this table; its columns are {columns}",
             file=name,
             row=1,
             column=extra[0],
@@ -745,7 +772,7 @@ def check_table(name: str, data: bytes, session_document: Mapping[str, Any]) -> 
         dup = next(c for c in header if header.count(c) > 1)
         raise InputError("column appears more than once", file=name, row=1, column=dup)
     records = _rows_at(session_document, table.path)
-    expected_rows = [[_cell(record.get(c)) for c in table.columns] for record in records]
+    expected_rows = [[_cell(record.get(c)) for c in columns] for record in records]
     body = [row for row in rows[1:] if any(cell.strip() for cell in row)]
     for number, row in enumerate(rows[1:], start=2):
         if any(cell.strip() for cell in row) and len(row) != len(header):
@@ -765,7 +792,7 @@ def check_table(name: str, data: bytes, session_document: Mapping[str, Any]) -> 
         )
     for (number, row), expected, record in zip(numbered, expected_rows, records, strict=True):
         found = dict(zip(header, row, strict=True))
-        for column, want in zip(table.columns, expected, strict=True):
+        for column, want in zip(columns, expected, strict=True):
             if not _cells_equal(record.get(column), want, found[column]):
                 raise InputError(
                     f"holds {found[column]!r} but session.json (the authoritative record) has "
@@ -774,6 +801,8 @@ def check_table(name: str, data: bytes, session_document: Mapping[str, Any]) -> 
                     row=number,
                     column=column,
                 )
+    if layout != BUNDLE_FORMAT_VERSION:  # an older layout's table: its values agree, its columns are its own
+        return True
     return data == table_text(session_document, table).encode("utf-8")
 
 
@@ -855,7 +884,7 @@ def read_bundle(path: str | os.PathLike) -> BundleContents:
         listed[name] = entry
 
     for name, entry in listed.items():
-        if entry["role"] == "table" and not check_table(name, files[name], session_doc):
+        if entry["role"] == "table" and not check_table(name, files[name], session_doc, layout=found_version):
             problems.append(
                 f"{name}: re-formatted since it was written; its values agree with session.json"
             )
