@@ -25,16 +25,14 @@ file.
 
 from __future__ import annotations
 
-import os
-import threading
-from collections.abc import Callable, Mapping, Sequence
-from concurrent.futures import ThreadPoolExecutor
+from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
 from swimlab import _validate, checks
+from swimlab._parallel import each_channel
 from swimlab.errors import InputError
 from swimlab.settings import DEFAULT_SETTINGS, LabSettings
 
@@ -391,28 +389,6 @@ def phases_from_shape(time_s: Any, oxygen: Any, wait_s: float, *, min_rise: floa
 
 
 # --- segment statistics ---------------------------------------------------------------------
-
-
-_POOL: ThreadPoolExecutor | None = None
-_POOL_LOCK = threading.Lock()
-_POOL_PREFIX = "swimlab-channel"
-
-
-def each_channel(fn: Callable[[Any], Any], channels: Sequence[Any]) -> list[Any]:
-    """``[fn(c) for c in channels]``, run on two threads where the machine has two cores.
-
-    The work of a channel is numpy loops over its readings, during which numpy releases the GIL,
-    so channels computed side by side take less wall time; results keep the channels' order and
-    equal those of the plain loop.
-    """
-    global _POOL
-    nested = threading.current_thread().name.startswith(_POOL_PREFIX)  # no waiting on itself
-    if len(channels) < 2 or (os.cpu_count() or 1) < 2 or nested:
-        return [fn(c) for c in channels]
-    with _POOL_LOCK:
-        if _POOL is None:
-            _POOL = ThreadPoolExecutor(max_workers=2, thread_name_prefix=_POOL_PREFIX)
-    return list(_POOL.map(fn, channels))
 
 
 class _Segments:
@@ -962,8 +938,8 @@ def concentration_from_trace(trace_oxygen: Mapping[str, Any], unit: str, tempera
 
     def one(channel: str) -> np.ndarray:
         y = values[channel]
-        low = np.min(y)
-        if low < 0 or (np.isnan(low) and (y < 0).any()):
+        low = np.fmin.reduce(y)  # NaN (missing readings) skipped; NaN only when all are missing
+        if low < 0:
             i = first(y < 0)
             raise InputError(f"channel {channel!r} reading {i + 1} is {y[i]!r} {source}; oxygen "
                              f"cannot be negative", field=f"oxygen.{channel}", row=i + 1)
@@ -971,9 +947,7 @@ def concentration_from_trace(trace_oxygen: Mapping[str, Any], unit: str, tempera
             return y.copy()
         to_mg, to_pct, lengths = factors(channel)
         if to_pct is None:
-            high = np.max(y)
-            too_high = high > ox.MAX_PERCENT_AIR_SATURATION or (
-                np.isnan(high) and (y > ox.MAX_PERCENT_AIR_SATURATION).any())
+            too_high = np.fmax.reduce(y) > ox.MAX_PERCENT_AIR_SATURATION
             over = y > ox.MAX_PERCENT_AIR_SATURATION if too_high else None
         else:
             over = y * np.repeat(to_pct, lengths) > ox.MAX_PERCENT_AIR_SATURATION

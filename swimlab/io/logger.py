@@ -37,6 +37,7 @@ import pyarrow.compute as pc
 import pyarrow.csv as pacsv
 
 from swimlab import oxygen
+from swimlab._parallel import each_channel
 from swimlab.errors import InputError
 from swimlab.io.checksum import sha256_hex
 from swimlab.oxygen import UNITS
@@ -991,25 +992,26 @@ class _Glitches:
     """Collects findings as arrays, turned into one table at the end."""
 
     def __init__(self) -> None:
-        self.lines: list[np.ndarray] = []
-        self.rest: list[tuple[str, str, list[Any], str]] = []
+        # One entry per finding kind and column, appended in one step (columns may be checked
+        # on two threads); the table is sorted by line and column, whatever the order.
+        self.parts: list[tuple[np.ndarray, str, str, list[Any], str]] = []
 
     def add(self, lines: np.ndarray, column: str, kind: str, values: Any, action: str) -> None:
         lines = np.asarray(lines, dtype=np.int64)
         if lines.size == 0:
             return
         values = [values] * lines.size if isinstance(values, str) else list(values)
-        self.lines.append(lines)
-        self.rest.append((column, kind, values, action))
+        self.parts.append((lines, column, kind, values, action))
 
     def table(self) -> pd.DataFrame:
-        lines = np.concatenate(self.lines) if self.lines else np.zeros(0, dtype=np.int64)
-        sizes = [part.size for part in self.lines]
-        column = np.repeat(np.array([r[0] for r in self.rest], dtype=object), sizes)
-        kind = np.repeat(np.array([r[1] for r in self.rest], dtype=object), sizes)
-        action = np.repeat(np.array([r[3] for r in self.rest], dtype=object), sizes)
+        parts = sorted(self.parts, key=lambda p: (p[1], p[2], p[4]))  # same order on every run
+        lines = np.concatenate([p[0] for p in parts]) if parts else np.zeros(0, dtype=np.int64)
+        sizes = [p[0].size for p in parts]
+        column = np.repeat(np.array([p[1] for p in parts], dtype=object), sizes)
+        kind = np.repeat(np.array([p[2] for p in parts], dtype=object), sizes)
+        action = np.repeat(np.array([p[4] for p in parts], dtype=object), sizes)
         value = np.empty(lines.size, dtype=object)
-        value[:] = [v for r in self.rest for v in r[2]]
+        value[:] = [v for p in parts for v in p[3]]
         out = pd.DataFrame({"line": lines, "column": column, "kind": kind, "value": value,
                             "action": action})
         for col in ("column", "kind", "value", "action"):
@@ -1198,30 +1200,31 @@ def _float_text_of(arr: pa.ChunkedArray) -> Any:
     return text_of
 
 
-def _kept_floats(table: pa.Table, columns: list[str], kept: np.ndarray | None) -> dict[str, np.ndarray]:
-    """The kept rows of number columns as read-only numpy arrays, empty cells as NaN.
+def _kept_rows(table: pa.Table, columns: list[str], kept: np.ndarray | None) -> pa.Table:
+    """The kept rows of number columns, without copying.
 
-    Dropped readings are few: the runs of kept rows are sliced without copying, and Arrow joins
-    them (filling empty cells) in its own memory pool, so the values are copied once and numpy
-    views them without a further copy.
+    Dropped readings are few: the runs of kept rows are sliced and stacked as chunks.
     """
-    if not columns:
-        return {}
     part = table.select(columns)
-    if kept is not None:
-        breaks = np.flatnonzero(np.diff(kept) != 1) + 1
-        firsts = kept[np.concatenate([[0], breaks])]
-        lasts = kept[np.concatenate([breaks, [kept.size]]) - 1]
-        part = pa.concat_tables([part.slice(int(a), int(b) - int(a) + 1)
-                                 for a, b in zip(firsts, lasts, strict=True)])
-    out = {}
-    for col in columns:
-        arr = part.column(col)
-        if arr.null_count:
-            arr = pc.fill_null(arr, np.nan)
-        arr = arr.combine_chunks() if arr.num_chunks != 1 else arr.chunk(0)
-        out[col] = arr.to_numpy(zero_copy_only=True)
-    return out
+    if kept is None or not columns:
+        return part
+    breaks = np.flatnonzero(np.diff(kept) != 1) + 1
+    firsts = kept[np.concatenate([[0], breaks])]
+    lasts = kept[np.concatenate([breaks, [kept.size]]) - 1]
+    return pa.concat_tables([part.slice(int(a), int(b) - int(a) + 1)
+                             for a, b in zip(firsts, lasts, strict=True)])
+
+
+def _float_values_of(arr: pa.ChunkedArray) -> np.ndarray:
+    """A number column as one read-only numpy array, empty cells as NaN.
+
+    Arrow fills the empty cells and joins the chunks in its own memory pool, so the values are
+    copied once and numpy views them without a further copy.
+    """
+    if arr.null_count:
+        arr = pc.fill_null(arr, np.nan)
+    arr = arr.combine_chunks() if arr.num_chunks != 1 else arr.chunk(0)
+    return arr.to_numpy(zero_copy_only=True)
 
 
 def _time_seconds(arr: pa.ChunkedArray, mapping: ColumnMapping) -> tuple[Any, ...]:
@@ -1345,10 +1348,11 @@ def _parse_each(strings: pa.ChunkedArray | pa.Array, fmt: str) -> np.ndarray:
 
 
 def _ns_to_seconds(ns: np.ndarray, bad: np.ndarray) -> np.ndarray:
-    good = np.flatnonzero(~bad)
-    origin = ns[good[0]] if good.size else 0
-    seconds = (ns - origin).astype(float) / 1e9
-    seconds[bad] = np.nan
+    any_bad = bool(bad.any())
+    origin = 0 if any_bad and bad.all() else ns[int(np.argmin(bad))]  # the first good reading
+    seconds = np.divide(np.subtract(ns, origin), 1e9)
+    if any_bad:
+        seconds[bad] = np.nan
     return seconds
 
 
@@ -1545,11 +1549,11 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
     keep &= ~all_empty
 
     # 3. midnight for clock times of day -------------------------------------------------------
-    kept = np.flatnonzero(keep)
+    kept = np.arange(n_rows) if keep.all() else np.flatnonzero(keep)
     if kept.size < 2:
         raise InputError(f"the file has {kept.size} usable reading(s); expected at least two "
                          f"with a time and a value", file=name)
-    t = seconds[kept]
+    t = seconds if kept.size == n_rows else seconds[kept]
     if mapping.time_format == "time_of_day":
         steps = np.diff(t)
         roll = np.flatnonzero(steps < -ROLLOVER_S) + 1
@@ -1562,39 +1566,41 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
                          "1 day added to this and later readings (clock passed midnight)")
 
     # 4. duplicated and backwards times -------------------------------------------------------
+    # A reading not later than the latest before it is dropped; such readings are few, so they
+    # are found in one comparison with the running maximum and classified alone.
     latest = np.maximum.accumulate(t)
-    before = np.concatenate([[-np.inf], latest[:-1]])
-    dup = t == before
-    back = t < before
-    if dup.any():
-        glitches.add(lines[kept[dup]], mapping.time, "duplicate_time",
-                     _time_texts(t[dup], origin, kept[dup], mapping), "row dropped (later duplicate)")
-    if back.any():
-        glitches.add(lines[kept[back]], mapping.time, "backwards_time",
-                     _time_texts(t[back], origin, kept[back], mapping),
-                     "row dropped (time earlier than a previous reading)")
-    ok = ~(dup | back)
-    kept, t = kept[ok], t[ok]
+    late = np.flatnonzero(t[1:] <= latest[:-1]) + 1
+    if late.size:
+        dup = t[late] == latest[late - 1]
+        for rows, kind, action in ((late[dup], "duplicate_time", "row dropped (later duplicate)"),
+                                   (late[~dup], "backwards_time",
+                                    "row dropped (time earlier than a previous reading)")):
+            glitches.add(lines[kept[rows]], mapping.time, kind,
+                         _time_texts(t[rows], origin, kept[rows], mapping), action)
+        kept, t = np.delete(kept, late), np.delete(t, late)
     if kept.size < 2:
         raise InputError(f"the file has {kept.size} usable reading(s) in time order; expected at "
                          f"least two", file=name)
     all_kept = kept.size == n_rows
 
     # 5. values of kept readings ---------------------------------------------------------------
-    row_lines = lines[kept]
+    row_lines = lines[0] + kept  # lines are consecutive: row k is on line lines[0] + k
     oxygen: dict[str, np.ndarray] = {}
     temperature: dict[str, np.ndarray] = {}
-    clean: dict[str, np.ndarray] = {}
     lo, hi = OXYGEN_RANGES[mapping.oxygen_unit]
-    floats = _kept_floats(table, [c for c in cells if cells[c].values is None],
-                          None if all_kept else kept)
-    for col in oxygen_cols + temp_cols:
+    part = _kept_rows(table, [c for c in cells if cells[c].values is None], None if all_kept else kept)
+
+    def column_values(col: str) -> np.ndarray:
         is_oxygen = col in oxygen_cols
         codes = mapping.oxygen_error_codes if is_oxygen else mapping.temperature_error_codes
         what = f"oxygen [{mapping.oxygen_unit}]" if is_oxygen else "temperature [°C]"
         low, high = (lo, hi) if is_oxygen else TEMPERATURE_RANGE_C
-        clean[col] = _clean_values(col, cells[col], floats.get(col), kept, all_kept, row_lines,
-                                   codes, what, low, high, name, glitches, mapping)
+        kept_values = _float_values_of(part.column(col)) if cells[col].values is None else None
+        return _clean_values(col, cells[col], kept_values, kept, all_kept, row_lines, codes, what,
+                             low, high, name, glitches, mapping)
+
+    value_cols = oxygen_cols + temp_cols
+    clean = dict(zip(value_cols, each_channel(column_values, value_cols), strict=True))
     for label, col in mapping.oxygen.items():
         oxygen[label] = clean[col]
     for label, col in mapping.temperature.items():
