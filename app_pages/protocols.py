@@ -306,12 +306,16 @@ common.explain(
     "Ramp Umax = U₀ + a·t at fatigue (Farrell 2008), on set and blocking-corrected speed; it is not a step Ucrit. "
     "Endurance: time at the set speed to fatigue, or censored at the time limit; across fish, Kaplan–Meier per set "
     "speed and a censored (Tobin 1958) regression of log₁₀ time on speed. Repeat swim: recovery ratio Ucrit₂ / Ucrit₁ "
-    "(Jain, Birtwell & Farrell 1998). Recovery: EPOC above the stated baseline, by trapezoids and from a fitted one- "
+    "(Jain, Birtwell & Farrell 1998), with a 95 % interval for the one pair by Fieller (1954) from a measurement "
+    "model — each fatigue time known within the lab's span (uniform), moving Ucrit by ΔU/t_ii per second; a flume "
+    "calibration shared by both swims cancels in the ratio — which is measurement uncertainty only, not the fish's "
+    "swim-to-swim variation. Recovery: EPOC above the stated baseline, by trapezoids and from a fitted one- "
     "or two-phase exponential decay; times to 50 % and 95 % recovery. Gait: Up–c and burst onset from the event log "
     "(Drucker & Jensen 1996). Kinematics: frequency = beats / window, stride = U/f, St = f·A/U (Taylor, Nudds & "
     "Thomas 2003), and Bainbridge's (1958) U = ¼ L (3f − 4) for comparison.",
     ["swimlab.protocols.ramp.umax", "swimlab.protocols.endurance.kaplan_meier",
      "swimlab.protocols.endurance.fatigue_curve", "swimlab.protocols.repeat.recovery_ratio",
+     "swimlab.protocols.repeat.recovery_ratio_from_measurement", "swimlab.protocols.repeat.fieller_interval",
      "swimlab.protocols.recovery.epoc", "swimlab.protocols.gait.gait_summary",
      "swimlab.protocols.kinematics.bainbridge_speed_m_s", "swimlab.protocols.kinematics.strouhal_number"],
 )

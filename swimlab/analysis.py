@@ -62,6 +62,8 @@ class Analysis:
     concentration: dict[str, np.ndarray] = field(default_factory=dict, repr=False)
     import_report: pd.DataFrame = field(default_factory=pd.DataFrame)
     calibration: Any = None
+    flume_name: str = ""
+    """The swim tunnel's name (to tell whether two swims shared one flume and its calibration)."""
     groups: pd.DataFrame = field(default_factory=pd.DataFrame)
     """Group trials: one row per group of fish swum together in one chamber (see :func:`_groups`)."""
     protocol: Any = None
@@ -217,6 +219,7 @@ def analyse(
         concentration=concentration,
         import_report=import_report,
         calibration=calibration,
+        flume_name=session.flume.name,
         groups=groups,
     )
     # the protocol stage: ramp, endurance, repeat swim, recovery, gait and kinematics

@@ -696,10 +696,30 @@ def _ratio_for(first: Analysis, second: Analysis, fish_id: str) -> repeat.Recove
                          field="first_swim")
     if u2 is None:
         raise InputError(f"this swim gave no Ucrit for fish {fish_id!r} (see its flags)", field="protocol.fatigue_time_s")
-    if basis1 != basis2:  # compare like with like: both on set speed
-        u1 = float(first.ucrit[fish_id]["set"].ucrit_m_s)
-        u2 = float(second.ucrit[fish_id]["set"].ucrit_m_s)
-    return repeat.recovery_ratio(u1, u2, fish_id_1=fish_id, fish_id_2=fish_id)
+    basis = basis1 if basis1 == basis2 else "set"  # compare like with like: both on set speed
+    res1, res2 = first.ucrit[fish_id][basis], second.ucrit[fish_id][basis]
+    settings = second.settings
+    shared = _shared_calibration(first, second)
+    s_cal = 0.0 if shared else settings.speed_calibration_uncertainty_pct / 100.0
+    try:
+        m1 = repeat.ucrit_measurement_uncertainty(res1.ucrit_m_s, res1.increment_m_s, res1.step_duration_s,
+                                                  settings.fatigue_time_uncertainty_s, s_cal)
+        m2 = repeat.ucrit_measurement_uncertainty(res2.ucrit_m_s, res2.increment_m_s, res2.step_duration_s,
+                                                  settings.fatigue_time_uncertainty_s, s_cal)
+    except (InputError, TypeError):  # a result without its step (not a step test): no interval
+        return repeat.recovery_ratio(float(res1.ucrit_m_s), float(res2.ucrit_m_s), fish_id_1=fish_id,
+                                     fish_id_2=fish_id)
+    return repeat.recovery_ratio_from_measurement(m1, m2, shared_calibration=shared, fish_id=fish_id)
+
+
+def _shared_calibration(first: Analysis, second: Analysis) -> bool:
+    """Whether two swims' speeds come from one flume calibration (same flume, same fitted curve)."""
+    if getattr(first, "flume_name", "") != getattr(second, "flume_name", ""):
+        return False
+    c1, c2 = first.calibration, second.calibration
+    if c1 is None or c2 is None:
+        return c1 is None and c2 is None  # set speeds of one flume's controller, uncalibrated alike
+    return tuple(c1.coefficients) == tuple(c2.coefficients)
 
 
 def _ratio_basis(first: Analysis, second: Analysis, fish_id: str) -> str:
@@ -736,9 +756,15 @@ def _repeat(session: Session, analysis: Analysis, first_swim: Analysis | None, o
         ratios[fid] = rr
         basis = _ratio_basis(first_swim, analysis, fid)
         rest = f" after {p.rest_interval_min:g} min of rest" if p.rest_interval_min is not None else ""
+        if rr.ci_low is not None:
+            note = (f"{rr.confidence:.0%} interval by Fieller (1954) from the measurement model: {rr.uncertainty} "
+                    f"(fatigue-time span {analysis.settings.fatigue_time_uncertainty_s:g} s); see the study's group "
+                    "summary for the spread between fish")
+        else:
+            note = "no interval: the Ucrit values carry no step to model their uncertainty; see the study's group summary"
         out.add("repeat", fid, "repeat_recovery_ratio", rr.ratio, "-",
                 f"Ucrit₂ / Ucrit₁ (Jain, Birtwell & Farrell 1998) on {basis}{rest}",
-                note="no interval: a step-test Ucrit carries no standard error; see the study's group summary")
+                ci=(rr.ci_low, rr.ci_high), note=note)
         out.add("repeat", fid, "repeat_ucrit_first", rr.ucrit_1_m_s / CM, "cm/s",
                 f"Brett (1964), {basis}, session {first_swim.session_id}")
         out.add("repeat", fid, "repeat_ucrit_second", rr.ucrit_2_m_s / CM, "cm/s", f"Brett (1964), {basis}, this session")

@@ -964,8 +964,21 @@ def _m_protocol_analysis(f: _Facts) -> str:
                     "the share still swimming is estimated by Kaplan–Meier (Kaplan & Meier 1958) per set speed, and log₁₀ "
                     "endurance time is regressed on speed by a censored normal likelihood (Tobin 1958).")
     if "repeat" in parts:
+        st = f.settings
+        rr = next(iter(pr.repeat.values()), None)
+        shared = rr is not None and "cancels" in (rr.uncertainty or "")
         text.append("The recovery ratio is Ucrit₂ / Ucrit₁ of the same fish, both on blocking-corrected speed where both "
-                    "have it, else both on set speed (Jain, Birtwell & Farrell 1998).")
+                    "have it, else both on set speed (Jain, Birtwell & Farrell 1998). Its 95 % interval for this one "
+                    "pair is Fieller's (1954) interval from a stated measurement model, not from repeated swims: each "
+                    "fatigue time is taken as known only within a span of "
+                    f"{format_entered(st.fatigue_time_uncertainty_s, 's')} (uniform; SD = span/√12), which moves Ucrit by "
+                    "ΔU/t_ii per second (Brett 1964), and "
+                    + ("the two swims shared one flume calibration, whose error is one factor on both speeds and so "
+                       "cancels in the ratio" if shared else
+                       f"the two swims' speeds carry independent calibration errors of "
+                       f"{format_entered(st.speed_calibration_uncertainty_pct, '%')} each (an assumed value)")
+                    + ". The interval covers that measurement uncertainty only, not how much a fish's Ucrit varies "
+                    "from one swim to the next; the spread between fish comes from the group summary.")
     if "recovery" in parts:
         text.append("EPOC is the oxygen taken up above the baseline after exhaustion, by trapezoids through the accepted "
                     "phases over the recorded span, and as the area under a one- or two-phase exponential decay fitted "
@@ -1985,7 +1998,9 @@ def _protocol_sentences(f: _Facts) -> dict[str, list[str]]:
             rr = pr.repeat[fid]
             out.setdefault("repeat", []).append(
                 f"Fish {fid}: the repeat-swim recovery ratio Ucrit₂ / Ucrit₁ was {format_number(rr.ratio)} "
-                f"(second swim {_q(f, fid, 'repeat_ucrit_second')}"
+                + (f"(95 % measurement interval {format_range(rr.ci_low, rr.ci_high)}, Fieller 1954) "
+                   if rr.ci_low is not None else "")
+                + f"(second swim {_q(f, fid, 'repeat_ucrit_second')}"
                 + (f" after {format_entered(p.rest_interval_min, 'min')} of rest" if p.rest_interval_min is not None else "")
                 + f"; first swim {_q(f, fid, 'repeat_ucrit_first')}, session {pr.first_swim_session_id}).")
         if fid in pr.recovery:

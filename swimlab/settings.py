@@ -92,6 +92,17 @@ class LabSettings:
     fit_relative_se_max: float = 0.5
     """Largest relative standard error of a fitted curve parameter before the fit is flagged as
     poorly constrained. [-] Common practice."""
+    fatigue_time_uncertainty_s: float = 30.0
+    """Width of the span within which a recorded fatigue time could lie: the recording's
+    resolution together with the judgement of the fatigue call (e.g. 10 s on the rear grid and
+    three taps). Treated as a uniform error of this width in the recovery ratio's measurement
+    interval. [s] An assumption of this lab, stated in the report (common practice; no single
+    source)."""
+    speed_calibration_uncertainty_pct: float = 2.0
+    """Relative standard uncertainty of water speeds from the flume's calibration, used for the
+    recovery ratio only when the two swims did not share one flume calibration (a shared
+    calibration cancels in the ratio). [%] An assumption of this lab (common practice for a
+    calibrated flow meter; no single source, from memory)."""
 
     # --- welfare ------------------------------------------------------------------------------
     max_time_at_exhaustion_s: float = 60.0

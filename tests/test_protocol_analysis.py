@@ -673,3 +673,39 @@ def test_protocol_figures_carry_their_protocol_names(ramp_trial, recovery_analys
     assert plots.fatigue_curve_figure(summary).layout.yaxis.type == "log"
     # nothing to draw: None, not an empty figure
     assert plots.ramp_mo2_figure(pr, "FH-W1") is None and plots.epoc_figure(pr, "FH-W1") is None
+
+
+def test_demo_repeat_pair_gets_a_measurement_interval(demo_items):
+    # One flume and one calibration for both swims: the interval is the fatigue-time span's alone.
+    # By hand (set speeds, as corrected and set give the same ratio here to 1e-9): each Ucrit moves
+    # ΔU / t_ii = 0.10 m/s / 1200 s per second of fatigue time; span 30 s → SE 7.2169e-4 m/s, so
+    # the relative SE of the ratio is √((7.2169e-4/U₁)² + (7.2169e-4/U₂)²) on blocking-corrected
+    # speeds scaled by the same factor (the ΔU is corrected too).
+    _, second = demo_items["bw26-p02-second-swim"]
+    rr = second.protocol.repeat["BW26-P01"]
+    assert rr.ci_method == "fieller1954" and "cancels" in rr.uncertainty
+    _, first = demo_items["bw26-p01-first-swim"]
+    u1 = first.ucrit["BW26-P01"]["corrected"]
+    se_t = u1.increment_m_s / u1.step_duration_s * 30.0 / math.sqrt(12.0)
+    rel = math.hypot(se_t / rr.ucrit_1_m_s, se_t / rr.ucrit_2_m_s)
+    assert (rr.ci_high - rr.ci_low) / 2 == pytest.approx(1.959964 * rr.ratio * rel, rel=1e-4)  # Fieller ≈ delta here
+    row = second.protocol.results.set_index("quantity").loc["repeat_recovery_ratio"]
+    assert row["ci_low"] == pytest.approx(rr.ci_low) and "Fieller (1954)" in row["note"]
+
+
+def test_repeat_interval_widens_when_the_swims_used_different_flumes(demo_items):
+    from dataclasses import replace
+
+    _, second = demo_items["bw26-p02-second-swim"]
+    session, _ = demo_items["bw26-p02-second-swim"]
+    _, first = demo_items["bw26-p01-first-swim"]
+    elsewhere = replace(first, flume_name="another tunnel")
+    from swimlab.protocol_analysis import analyse_protocol
+
+    pr, _ = analyse_protocol(session, replace(second, protocol=None), first_swim=elsewhere)
+    rr = pr.repeat["BW26-P01"]
+    shared = second.protocol.repeat["BW26-P01"]
+    assert "two separate speed calibrations" in rr.uncertainty
+    # two independent 2 % calibrations: relative SE ≈ 0.02·√2, far above the timing term
+    assert rr.se / rr.ratio == pytest.approx(0.02 * math.sqrt(2), rel=0.05)
+    assert rr.ci_high - rr.ci_low > 10 * (shared.ci_high - shared.ci_low)
