@@ -200,6 +200,20 @@ def test_bytes_are_not_changed_and_checksum_matches_hashlib(tmp_path):
     assert trace.sha256 == hashlib.sha256(before).hexdigest() == sha256_hex(before)
 
 
+def test_readings_of_a_trace_are_read_only(tmp_path):
+    # Columns with glitches (values set missing) and clean ones alike: the trace records the file.
+    lines = make_export(preamble=False).text.split("\r\n")
+    fields = lines[3].split(",")
+    fields[1] = ""  # one empty oxygen cell in channel 1; channel 2 stays clean
+    lines[3] = ",".join(fields)
+    trace = read_logger("\r\n".join(lines).encode(), name="export.csv")
+    assert list(trace.glitches.kind) == ["missing"]
+    arrays = [trace.time_s, trace.pump, *trace.oxygen.values(), *trace.temperature_c.values()]
+    assert all(a is not None and not a.flags.writeable for a in arrays)
+    with pytest.raises(ValueError, match="read-only"):
+        next(iter(trace.oxygen.values()))[0] = 1.0
+
+
 def test_shared_temperature_column_appears_under_every_channel(tmp_path):
     exp = make_export(channels=("A", "B", "C"), shared_temperature=True)
     trace = read_logger(write(tmp_path, exp.text), name="export.csv")

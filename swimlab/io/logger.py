@@ -939,6 +939,7 @@ class LoggerTrace:
         checksum, so reading it for an analysis need not hash it again.
     time_s
         Time of each kept reading since the first kept reading, strictly increasing. [s]
+        This and the other arrays of readings are read-only: copy one before changing it.
     start_time
         Clock time of the first kept reading when the file has dates (ISO, day-first or
         month-first), else None.
@@ -1601,6 +1602,8 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
 
     value_cols = oxygen_cols + temp_cols
     clean = dict(zip(value_cols, each_channel(column_values, value_cols), strict=True))
+    for values in clean.values():
+        values.flags.writeable = False  # the trace is a record of the file: read-only throughout
     for label, col in mapping.oxygen.items():
         oxygen[label] = clean[col]
     for label, col in mapping.temperature.items():
@@ -1609,6 +1612,7 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
     if mapping.pump:
         pump = _pump_states(table.column(mapping.pump), kept, row_lines, mapping.pump, name,
                             glitches)
+        pump.flags.writeable = False
 
     # 6. gaps --------------------------------------------------------------------------------
     steps = np.diff(t)
@@ -1636,6 +1640,7 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
     else:
         elapsed_start = float(t[0])
     time_s = t - t[0]
+    time_s.flags.writeable = False
     return {
         "name": name, "time_s": time_s, "start_time": start_time, "oxygen": oxygen,
         "oxygen_unit": mapping.oxygen_unit, "temperature_c": temperature, "pump": pump,
