@@ -885,3 +885,11 @@ def test_remembered_mapping_follows_the_layout_of_a_new_export(tmp_path):
     trace = read_logger(data, name="b.csv", mapping=mapping.with_layout(layout))
     np.testing.assert_array_equal(trace.oxygen["2"], later.oxygen["2"])
     assert trace.mapping.header_line == 4 and trace.mapping.oxygen == mapping.oxygen
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.sampled_from([0.5, 1.0, 1.0, 1.0, 2.0, 7.5]), min_size=1, max_size=60))
+def test_median_step_equals_numpy_median(steps):
+    # numpy.median is the reference; the shortcut applies when one value holds the majority.
+    steps = np.asarray(steps, dtype=float)
+    assert lg._median_step(steps) == float(np.median(steps))

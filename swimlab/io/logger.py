@@ -1616,7 +1616,7 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
 
     # 6. gaps --------------------------------------------------------------------------------
     steps = np.diff(t)
-    median = float(np.median(steps))
+    median = _median_step(steps)
     gaps = np.flatnonzero(steps > gap_factor * median) + 1
     if gaps.size:
         glitches.add(row_lines[gaps], mapping.time, "gap",
@@ -1647,6 +1647,15 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
         "glitches": glitches.table(), "mapping": mapping, "n_rows_read": int(n_rows),
         "lines": row_lines, "start_time_of_day": start_tod, "elapsed_start_s": elapsed_start,
     }
+
+
+def _median_step(steps: np.ndarray) -> float:
+    """Median of the time steps; a logger's steps are mostly one value, which is then the median
+    (a value held by more than half of them spans the middle of their sorted order)."""
+    candidate = steps[steps.size // 2]
+    if 2 * np.count_nonzero(steps == candidate) > steps.size:
+        return float(candidate)
+    return float(np.median(steps))
 
 
 def _clock_text(seconds: float) -> str:
