@@ -14,7 +14,13 @@ import streamlit as st
 
 from app_pages import common
 from swimlab import plots, ui_forms
-from swimlab.protocol_analysis import PART_LABELS, endurance_summary, repeat_pairs
+from swimlab.protocol_analysis import (
+    PART_LABELS,
+    endurance_summary,
+    gait_curve_sentences,
+    gait_curve_table,
+    repeat_pairs,
+)
 from swimlab.session import PROTOCOL_LABELS, RECOVERY_BASELINES, Session
 
 common.page_header(
@@ -281,6 +287,25 @@ if session.protocol.type == "endurance":
                                    name="endurance-fatigue-curve")
         for line in summary.problems:
             st.info(line)
+        if summary.by_gait is not None:
+            st.subheader("Endurance: fatigue curves per gait")
+            st.caption("Each gait the trials ended in (the last gait change with a gait, at or before fatigue or the "
+                       "limit) gets its own censored fatigue curve when it has enough trials: steady and burst-assisted "
+                       "swimming are separate domains (Brett 1964; Beamish 1978).")
+            st.dataframe(gait_curve_table(summary), hide_index=True, width="stretch", column_config={
+                "label": st.column_config.TextColumn("Gait at the end"),
+                "n_fish": st.column_config.NumberColumn("Fish [-]", format="%d"),
+                "n_fatigued": st.column_config.NumberColumn("Fatigued [-]", format="%d"),
+                "n_censored": st.column_config.NumberColumn("Censored [-]", format="%d"),
+                "intercept_log10_s": st.column_config.NumberColumn("Intercept [log10 s]", format="%.3f"),
+                "slope_log10_s_per_m_s": st.column_config.NumberColumn("Slope [log10 s per m/s]", format="%.2f"),
+                "slope_se": st.column_config.NumberColumn("Slope SE [log10 s per m/s]", format="%.2f"),
+                "sigma_log10_s": st.column_config.NumberColumn("Residual SD [log10 s]", format="%.3f"),
+                "median_time_at_fastest_min": st.column_config.NumberColumn(
+                    "Median endurance at the fastest speed [min]", format="%.1f"),
+                "fitted": st.column_config.CheckboxColumn("Own curve"), "gait": None})
+            for line in gait_curve_sentences(summary):
+                st.markdown(f"- {line}.")
         with st.expander("Endurance: every fish"):
             st.dataframe(fish, hide_index=True, width="stretch")
 
@@ -305,7 +330,8 @@ common.explain(
     "How these values are computed",
     "Ramp Umax = U₀ + a·t at fatigue (Farrell 2008), on set and blocking-corrected speed; it is not a step Ucrit. "
     "Endurance: time at the set speed to fatigue, or censored at the time limit; across fish, Kaplan–Meier per set "
-    "speed and a censored (Tobin 1958) regression of log₁₀ time on speed. Repeat swim: recovery ratio Ucrit₂ / Ucrit₁ "
+    "speed and a censored (Tobin 1958) regression of log₁₀ time on speed, also one per gait the trials ended in, "
+    "with a likelihood-ratio test (Wilks 1938) of one curve per gait against one pooled curve. Repeat swim: recovery ratio Ucrit₂ / Ucrit₁ "
     "(Jain, Birtwell & Farrell 1998), with a 95 % interval for the one pair by Fieller (1954) from a measurement "
     "model — each fatigue time known within the lab's span (uniform), moving Ucrit by ΔU/t_ii per second; a flume "
     "calibration shared by both swims cancels in the ratio — which is measurement uncertainty only, not the fish's "
@@ -314,7 +340,8 @@ common.explain(
     "(Drucker & Jensen 1996). Kinematics: frequency = beats / window, stride = U/f, St = f·A/U (Taylor, Nudds & "
     "Thomas 2003), and Bainbridge's (1958) U = ¼ L (3f − 4) for comparison.",
     ["swimlab.protocols.ramp.umax", "swimlab.protocols.endurance.kaplan_meier",
-     "swimlab.protocols.endurance.fatigue_curve", "swimlab.protocols.repeat.recovery_ratio",
+     "swimlab.protocols.endurance.fatigue_curve", "swimlab.protocols.endurance.fatigue_curves_by_gait",
+     "swimlab.protocols.repeat.recovery_ratio",
      "swimlab.protocols.repeat.recovery_ratio_from_measurement", "swimlab.protocols.repeat.fieller_interval",
      "swimlab.protocols.recovery.epoc", "swimlab.protocols.gait.gait_summary",
      "swimlab.protocols.kinematics.bainbridge_speed_m_s", "swimlab.protocols.kinematics.strouhal_number"],

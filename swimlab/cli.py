@@ -9,6 +9,9 @@ Commands
 ``analyse (BUNDLE_PATH | --session ID) [--out DIR]``
     Analyse a session, print its results and write steps.csv, phases.csv (measure phases with MO2),
     cycles.csv, results.csv, flags.csv and analysis.json.
+``fatigue-curves BUNDLE_PATH… [--out DIR]``
+    Endurance across fish: the censored fatigue curve of all fish and of each gait the trials
+    ended in, from the endurance bundles given (or folders of bundles).
 ``list [--status S]``
     List the sessions in the lab book.
 ``check-bundle PATH``
@@ -115,6 +118,18 @@ def build_parser() -> argparse.ArgumentParser:
         "--out", metavar="DIR", help="output folder (default: ./analysis-<session id>)"
     )
     cmd.set_defaults(run=_analyse)
+
+    cmd = commands.add_parser(
+        "fatigue-curves",
+        help="endurance across fish: fatigue curves pooled and per gait",
+        description="Analyse the fixed-speed endurance sessions among the bundles given (bundle folders, .zip "
+        "files, or folders of bundles) and print the censored fatigue curve of all fish, the curve of each gait "
+        "the trials ended in (with the test of one curve per gait against one pooled curve) and the maximum "
+        "sustained speed.",
+    )
+    cmd.add_argument("bundles", metavar="BUNDLE_PATH", nargs="+", help="bundle folders, .zip files or folders of them")
+    cmd.add_argument("--out", metavar="DIR", help="also write endurance_fish.csv and fatigue_curves_by_gait.csv here")
+    cmd.set_defaults(run=_fatigue_curves)
 
     cmd = commands.add_parser(
         "report",
@@ -354,6 +369,54 @@ def _report(args: argparse.Namespace) -> int:
         page_size=args.page_size, figures=not args.no_figures,
     )
     print(f"wrote the {fmt.upper()} report of session {session.session_id} ({session.title}) to {path}")
+    return EXIT_OK
+
+
+def _fatigue_curves(args: argparse.Namespace) -> int:
+    from swimlab.analysis import analyse
+    from swimlab.io.bundle import SESSION_JSON, read_bundle
+    from swimlab.protocol_analysis import endurance_summary, gait_curve_sentences, gait_curve_table
+
+    paths: list[Path] = []
+    for given in args.bundles:
+        path = Path(given)
+        if path.is_dir() and not (path / SESSION_JSON).is_file():  # a folder of bundles
+            paths.extend(sorted(p for p in path.iterdir() if (p / SESSION_JSON).is_file()))
+        else:
+            paths.append(path)
+    items = []
+    for path in paths:
+        contents = read_bundle(path)
+        if contents.session.protocol.type == "endurance":
+            items.append((contents.session, analyse(contents.session, contents.raw_files)))
+    summary = endurance_summary(items)
+    if summary is None:
+        from swimlab.errors import InputError
+
+        raise InputError("none of the bundles given holds a fixed-speed endurance session", field="bundles")
+    fish = summary.fish
+    print(f"Fixed-speed endurance: {len(fish)} fish, {int((~fish['fatigued']).sum())} still swimming at the "
+          f"{summary.time_limit_s / 60:g} min limit (censored)")
+    fit = summary.fatigue_curve
+    if fit is not None:
+        sign = "−" if fit.slope < 0 else "+"
+        print(f"  all fish pooled: log10 T [s] = {fit.intercept:.4g} {sign} {abs(fit.slope) / 100:.3g} × U [cm/s] "
+              f"(slope SE {(fit.slope_se or float('nan')) / 100:.2g}; Tobin 1958)")
+    mss = summary.max_sustained.speed_m_s
+    print(f"  maximum sustained speed (set): {'none' if mss is None else f'{mss * 100:.1f} cm/s'}")
+    for line in gait_curve_sentences(summary):
+        print(f"  per gait: {line}")
+    for line in summary.problems:
+        print(f"  note: {line}")
+    if args.out:
+        out = Path(args.out)
+        out.mkdir(parents=True, exist_ok=True)
+        from swimlab.io.bundle import _atomic_write_bytes
+
+        _atomic_write_bytes(out / "endurance_fish.csv", fish.to_csv(index=False).encode("utf-8"))
+        _atomic_write_bytes(out / "fatigue_curves_by_gait.csv",
+                            gait_curve_table(summary).to_csv(index=False).encode("utf-8"))
+        print(f"wrote endurance_fish.csv, fatigue_curves_by_gait.csv to {out}")
     return EXIT_OK
 
 

@@ -7,8 +7,9 @@ that made each trial is written beside its bundle (``demo_sessions/truth/<name>.
 reader can compare what swimlab recovers with what was put in.
 
 Besides the four step tests of :data:`TRIALS`, :data:`PROTOCOL_DEMOS` holds one trial of each
-protocol beyond the step test: a ramp test, six fixed-speed endurance swims (some fish still
-swimming at the limit), a repeat swim pair of one fish, a post-exercise recovery (EPOC), a
+protocol beyond the step test: a ramp test, twelve fixed-speed endurance swims with the gait
+each ended in (six in steady caudal swimming, some still swimming at the limit, and six faster
+ones in burst-and-coast swimming, on a steeper fatigue curve), a repeat swim pair of one fish, a post-exercise recovery (EPOC), a
 step test of a labriform swimmer with gait events and tail-beat records, and a group trial (four
 juveniles swum together in one respirometer).
 
@@ -286,17 +287,30 @@ ENDURANCE_CURVE = {"intercept_log10_s": 6.2, "slope_log10_s_per_m_s": -4.0, "sig
 ENDURANCE_LIMIT_MIN = 120.0
 
 
+BURST_CURVE = {"intercept_log10_s": 9.28, "slope_log10_s_per_m_s": -8.0, "sigma_log10_s": 0.15}
+"""The true fatigue curve of the burst-and-coast endurance demos (above the gait transition):
+log10 T[s] = 9.28 − 8.0 U[m/s] + 0.15 ε; it meets :data:`ENDURANCE_CURVE` at 0.77 m/s."""
+GAIT_TRANSITION_M_S = 0.77
+"""Set speed above which the demo trout turn to burst-and-coast swimming. [m/s] Invented."""
+
+
 def _endurance_fish() -> list[dict[str, Any]]:
-    """Six fish, two at each set speed, with fatigue times drawn from :data:`ENDURANCE_CURVE`."""
-    rng = np.random.default_rng(2650)
+    """Twelve fish: six in steady caudal swimming (two at each of 0.50, 0.62, 0.74 m/s) with
+    fatigue times drawn from :data:`ENDURANCE_CURVE`, and six in burst-and-coast swimming (two at
+    each of 0.80, 0.88, 0.96 m/s) drawn from :data:`BURST_CURVE`."""
     fish = []
-    for i, speed in enumerate((0.50, 0.50, 0.62, 0.62, 0.74, 0.74)):
-        c = ENDURANCE_CURVE
-        t = 10 ** (c["intercept_log10_s"] + c["slope_log10_s_per_m_s"] * speed + c["sigma_log10_s"] * rng.normal())
-        t = round(float(t) / 10.0) * 10.0  # recorded to 10 s
-        fish.append({"speed_m_s": speed, "fatigue_s": t if t <= ENDURANCE_LIMIT_MIN * 60 else None,
-                     "mass_g": (405.0, 440.0, 418.0, 452.0, 396.0, 430.0)[i],
-                     "length_cm": (31.5, 33.0, 32.0, 33.5, 31.0, 32.5)[i]})
+    for curve, seed, speeds, gait, masses, lengths in (
+            (ENDURANCE_CURVE, 2650, (0.50, 0.50, 0.62, 0.62, 0.74, 0.74), "steady_caudal",
+             (405.0, 440.0, 418.0, 452.0, 396.0, 430.0), (31.5, 33.0, 32.0, 33.5, 31.0, 32.5)),
+            (BURST_CURVE, 2670, (0.80, 0.80, 0.88, 0.88, 0.96, 0.96), "burst_and_coast",
+             (412.0, 436.0, 401.0, 447.0, 423.0, 409.0), (31.8, 32.8, 31.3, 33.2, 32.4, 31.6))):
+        rng = np.random.default_rng(seed)
+        for i, speed in enumerate(speeds):
+            c = curve
+            t = 10 ** (c["intercept_log10_s"] + c["slope_log10_s_per_m_s"] * speed + c["sigma_log10_s"] * rng.normal())
+            t = round(float(t) / 10.0) * 10.0  # recorded to 10 s
+            fish.append({"speed_m_s": speed, "fatigue_s": t if t <= ENDURANCE_LIMIT_MIN * 60 else None,
+                         "mass_g": masses[i], "length_cm": lengths[i], "gait": gait})
     return fish
 
 
@@ -311,14 +325,18 @@ PROTOCOL_DEMOS = (
     ),
     *(
         ProtocolDemo(
-            name=f"bw26-e0{i + 1}-endurance", session_id=f"bw26-e0{i + 1}-endurance",
-            title=f"BW-26 trout E0{i + 1}: endurance at {f['speed_m_s'] * 100:.0f} cm/s, "
-                  f"{ENDURANCE_LIMIT_MIN:.0f} min limit",
-            kind="endurance", fish_id=f"BW26-E0{i + 1}", species=TROUT, mass_g=f["mass_g"], length_cm=f["length_cm"],
-            depth_cm=round(f["length_cm"] * 0.22, 1), width_cm=round(f["length_cm"] * 0.112, 1), seed=2621 + i,
-            notes=("Fixed-speed endurance swim; " + ("fatigued within the limit." if f["fatigue_s"] is not None
-                                                     else "still swimming when the time limit ended.")),
-            params={"speed_m_s": f["speed_m_s"], "fatigue_s": f["fatigue_s"], "mo2_params": (70.0, 2.2)},
+            name=f"bw26-e{i + 1:02d}-endurance", session_id=f"bw26-e{i + 1:02d}-endurance",
+            title=f"BW-26 trout E{i + 1:02d}: endurance at {f['speed_m_s'] * 100:.0f} cm/s, "
+                  f"{ENDURANCE_LIMIT_MIN:.0f} min limit" + (" (burst-and-coast)" if f["gait"] == "burst_and_coast" else ""),
+            kind="endurance", fish_id=f"BW26-E{i + 1:02d}", species=TROUT, mass_g=f["mass_g"], length_cm=f["length_cm"],
+            depth_cm=round(f["length_cm"] * 0.22, 1), width_cm=round(f["length_cm"] * 0.112, 1),
+            seed=2621 + i if i < 6 else 2671 + i,
+            notes=("Fixed-speed endurance swim; " + ("fatigued within the limit" if f["fatigue_s"] is not None
+                                                     else "still swimming when the time limit ended")
+                   + ("; steady caudal swimming throughout." if f["gait"] == "steady_caudal" else
+                      "; turned to burst-and-coast swimming soon after the set speed was reached.")),
+            params={"speed_m_s": f["speed_m_s"], "fatigue_s": f["fatigue_s"], "mo2_params": (70.0, 2.2),
+                    "gait": f["gait"]},
         )
         for i, f in enumerate(_endurance_fish())
     ),
@@ -548,15 +566,23 @@ def build_protocol_demo(demo: ProtocolDemo) -> tuple[Session, dict[str, bytes], 
         protocol = {"type": "endurance", "start_s": trial.start_s, "set_speed_cm_s": round(prm["speed_m_s"] * 100, 1),
                     "time_limit_min": ENDURANCE_LIMIT_MIN, "fatigue_time_s": trial.fatigue_time_s}
         events = [{"time_s": trial.start_s, "kind": "note", "fish_id": demo.fish_id,
-                   "description": "Set speed reached; endurance swim started"}]
+                   "description": "Set speed reached; endurance swim started"},
+                  {"time_s": trial.start_s, "kind": "gait_change", "fish_id": demo.fish_id, "gait": "steady_caudal",
+                   "description": "steady body–caudal-fin swimming at the set speed"}]
+        if prm["gait"] == "burst_and_coast":
+            swum = trial.truth["time_s"]
+            events.append({"time_s": trial.start_s + round(min(20.0, swum / 3.0)), "kind": "gait_change",
+                           "fish_id": demo.fish_id, "gait": "burst_and_coast",
+                           "description": "burst-and-coast: tail-beat bursts between glides"})
         if trial.fatigue_time_s is not None:
             events.append({"time_s": trial.fatigue_time_s, "kind": "fatigue", "fish_id": demo.fish_id,
                            "description": "Rested on the rear grid 10 s; did not resume after three taps; speed lowered"})
         else:
             events.append({"time_s": trial.start_s + limit_s, "kind": "note", "fish_id": demo.fish_id,
                            "description": "Time limit reached with the fish still swimming; speed lowered"})
-        truth = {"protocol": "endurance", **trial.truth, "fatigue_curve": ENDURANCE_CURVE,
-                 "start_s": trial.start_s, "fatigue_time_s": trial.fatigue_time_s}
+        truth = {"protocol": "endurance", **trial.truth,
+                 "fatigue_curve": ENDURANCE_CURVE if prm["gait"] == "steady_caudal" else BURST_CURVE,
+                 "gait_at_end": prm["gait"], "start_s": trial.start_s, "fatigue_time_s": trial.fatigue_time_s}
     elif demo.kind == "recovery":
         trial = sim.simulate_recovery_trial(
             seed=demo.seed, exercise_speeds_m_s=prm["speeds_m_s"], exercise_step_s=prm["step_s"],

@@ -534,8 +534,17 @@ def kaplan_meier_figure(summary: Any) -> go.Figure | None:
     return fig
 
 
+GAIT_NAMES = {"pectoral": "pectoral", "steady_caudal": "steady caudal", "burst_and_coast": "burst-and-coast",
+              "": "gait not recorded"}
+"""Legend names of the gaits an endurance trial can end in."""
+
+
 def fatigue_curve_figure(summary: Any) -> go.Figure | None:
-    """Endurance: time to fatigue against speed (log time), censored fish open, and the fitted curve."""
+    """Endurance: time to fatigue against speed (log time), censored fish open, and the fitted curves.
+
+    With gaits recorded (``summary.by_gait``), each gait has its own colour and its own censored
+    fit where it has enough trials; the pooled fit is drawn thin and dotted for comparison.
+    """
     if summary is None or summary.fish.empty:
         return None
     fish = summary.fish
@@ -543,21 +552,45 @@ def fatigue_curve_figure(summary: Any) -> go.Figure | None:
     speed = fish["corrected_speed_cm_s"] if use_cor else fish["set_speed_cm_s"]
     fig = go.Figure()
     done = fish["fatigued"].astype(bool)
-    for mask, name, symbol in ((done, "fatigued", "circle"), (~done, "still swimming at the limit (censored)",
-                                                              "triangle-up-open")):
-        if mask.any():
-            fig.add_trace(go.Scatter(x=speed[mask], y=fish.loc[mask, "time_min"], mode="markers", name=name,
-                                     marker={"symbol": symbol, "size": 9, "color": PROTOCOL_COLOURS[0]},
-                                     text=fish.loc[mask, "fish_id"], hovertemplate="%{text}: %{y:.0f} min<extra></extra>"))
+    by_gait = getattr(summary, "by_gait", None)
+    gaits = fish["gait"].fillna("").astype(str) if "gait" in fish and by_gait is not None else pd.Series("", index=fish.index)
+    order = [g for g in ("pectoral", "steady_caudal", "burst_and_coast") if (gaits == g).any()]
+    order += sorted(set(gaits) - set(order) - {""}) + ([""] if (gaits == "").any() else [])
+    for k, g in enumerate(order):
+        colour = PROTOCOL_COLOURS[k % len(PROTOCOL_COLOURS)] if by_gait is not None else PROTOCOL_COLOURS[0]
+        label = GAIT_NAMES.get(g, g) if by_gait is not None else ""
+        for mask, name, symbol in ((done, "fatigued", "circle"),
+                                   (~done, "still swimming at the limit (censored)", "triangle-up-open")):
+            sel = mask & (gaits == g)
+            if sel.any():
+                fig.add_trace(go.Scatter(x=speed[sel], y=fish.loc[sel, "time_min"], mode="markers",
+                                         name=f"{label}: {name}" if label else name, legendgroup=g,
+                                         marker={"symbol": symbol, "size": 9, "color": colour},
+                                         text=fish.loc[sel, "fish_id"],
+                                         hovertemplate="%{text}: %{y:.1f} min<extra></extra>"))
+        curve = by_gait.curves.get(g) if by_gait is not None else None
+        if curve is not None:
+            own = speed[gaits == g]
+            grid = np.linspace(float(own.min()) * 0.97, float(own.max()) * 1.03, 60)
+            fig.add_trace(go.Scatter(x=grid, y=np.asarray(curve.median_time_s(grid / 100.0)) / 60.0, mode="lines",
+                                     name=f"{label}: median endurance (censored fit)", legendgroup=g,
+                                     line={"color": colour, "width": 3}))
     fit = summary.fatigue_curve
     if fit is not None:
         grid = np.linspace(float(speed.min()) * 0.95, float(speed.max()) * 1.05, 100)
+        pooled = by_gait is not None and bool(by_gait.curves)
         fig.add_trace(go.Scatter(x=grid, y=np.asarray(fit.median_time_s(grid / 100.0)) / 60.0, mode="lines",
-                                 name="median endurance (censored fit)", line={"color": PROTOCOL_COLOURS[1]}))
+                                 name="all fish pooled: median endurance" if pooled else "median endurance (censored fit)",
+                                 line={"color": "#777" if pooled else PROTOCOL_COLOURS[1],
+                                       "width": 1.5 if pooled else 2, "dash": "dot" if pooled else "solid"}))
+    if by_gait is not None and by_gait.break_speed_m_s is not None:
+        fig.add_vline(x=by_gait.break_speed_m_s * 100.0, line={"color": "#555", "dash": "dashdot", "width": 1},
+                      annotation_text=f"curves meet at {by_gait.break_speed_m_s * 100:.0f} cm/s",
+                      annotation_position="top")
     x_ends = [float(speed.min()) * 0.95, float(speed.max()) * 1.05]
     fig.add_trace(go.Scatter(x=x_ends, y=[summary.time_limit_s / 60.0] * 2, mode="lines", name="time limit",
                              line={"dash": "dash", "color": "#555"}))
-    fig.update_layout(title="Endurance: fatigue curve",
+    fig.update_layout(title="Endurance: fatigue curve" + (" per gait" if by_gait is not None and by_gait.curves else ""),
                       xaxis={"title": "Speed, blocking-corrected [cm/s]" if use_cor else "Set speed [cm/s]"},
                       yaxis={"title": "Time to fatigue [min]", "type": "log"}, template="plotly_white")
     return fig

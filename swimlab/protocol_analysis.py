@@ -55,7 +55,7 @@ from swimlab._tables import json_records
 from swimlab.constants import CM_PER_M
 from swimlab.errors import InputError
 from swimlab.protocols import endurance, gait, kinematics, ramp, recovery, repeat
-from swimlab.session import PROTOCOL_LABELS, RECOVERY_BASELINES, Session, step_table
+from swimlab.session import GAITS, PROTOCOL_LABELS, RECOVERY_BASELINES, Session, step_table
 
 if TYPE_CHECKING:  # pragma: no cover
     from swimlab.analysis import Analysis
@@ -71,6 +71,8 @@ __all__ = [
     "analyse_protocol",
     "EnduranceSummary",
     "endurance_summary",
+    "gait_curve_table",
+    "gait_curve_sentences",
     "RepeatSummary",
     "repeat_pairs",
 ]
@@ -151,7 +153,7 @@ _TABLE_COLUMNS = {
     "ramp_phases": ["fish_id", "cycle", "start_s", "end_s", "time_from_ramp_start_s", "set_speed_cm_s",
                     "corrected_speed_cm_s", "mo2_mg_kg_h", "used"],
     "endurance": ["fish_id", "set_speed_cm_s", "corrected_speed_cm_s", "time_s", "time_min", "fatigued",
-                  "time_limit_min", "fatigue_from"],
+                  "time_limit_min", "fatigue_from", "gait", "gait_from"],
     "recovery_curve": ["fish_id", "cycle", "time_after_exhaustion_s", "time_after_exhaustion_min", "mo2_mg_kg_h",
                        "baseline_mg_kg_h", "excess_mg_kg_h"],
     "gait_steps": ["fish_id", "step", "start_s", "end_s", "speed_cm_s", "swum_s", "bursts", "bursts_per_min",
@@ -235,6 +237,12 @@ class EnduranceOutcome:
     fatigue_from
         Where the fatigue time came from: ``"protocol.fatigue_time_s"``, ``"events.<i>"`` or
         ``"none recorded"``.
+    gait
+        The gait the trial ended in (a key of :data:`swimlab.session.GAITS`), or None when not
+        recorded: the gait of the last ``gait_change`` event with a gait, naming the fish, at or
+        before fatigue (or the time limit).
+    gait_from
+        Where it came from (``"events.<i>"``) or ``"not recorded"``.
     """
 
     protocol: str
@@ -248,6 +256,8 @@ class EnduranceOutcome:
     fatigued: bool
     time_limit_s: float
     fatigue_from: str
+    gait: str | None = None
+    gait_from: str = "not recorded"
 
 
 @dataclass(frozen=True)
@@ -477,6 +487,18 @@ def _ucrit_m_s(analysis: Analysis, fish_id: str) -> tuple[float | None, str]:
     return None, ""
 
 
+def _gait_at(session: Session, fish_id: str, time_s: float) -> tuple[str | None, str]:
+    """The gait a fish swam in at ``time_s``: the last gait_change with a gait at or before it."""
+    single = len(session.fish) == 1
+    found = [(e.time_s, i, e.gait) for i, e in enumerate(session.events)
+             if e.kind == "gait_change" and e.gait is not None and e.time_s <= time_s + 1e-9
+             and (e.fish_id == fish_id or (single and not e.fish_id))]
+    if not found:
+        return None, "not recorded"
+    _, i, gait_name = max(found)
+    return gait_name, f"events.{i}"
+
+
 def _fatigue_events(session: Session, fish_id: str) -> list[tuple[int, float]]:
     single = len(session.fish) == 1
     return [(i, e.time_s) for i, e in enumerate(session.events)
@@ -641,18 +663,22 @@ def _endurance(session: Session, analysis: Analysis, out: _Collector) -> dict[st
         t, done = float(times[0]), bool(fatigued[0])
         cor = _corrected(fish, analysis, u_set)
         u_cor = None if cor is None else float(cor)
+        gait_end, gait_from = _gait_at(session, fid, p.start_s + t)
         outcome = EnduranceOutcome("endurance", session.session_id, fid, fish.species, session.conditions.treatment,
-                                   u_set, u_cor, t, done, limit, source)
+                                   u_set, u_cor, t, done, limit, source, gait_end, gait_from)
         outcomes[fid] = outcome
         out.row("endurance", fish_id=fid, set_speed_cm_s=u_set / CM,
                 corrected_speed_cm_s=np.nan if u_cor is None else u_cor / CM, time_s=t, time_min=t / S_PER_MIN,
-                fatigued=done, time_limit_min=p.time_limit_min, fatigue_from=source)
+                fatigued=done, time_limit_min=p.time_limit_min, fatigue_from=source, gait=gait_end or "",
+                gait_from=gait_from)
+        gait_note = (f"ended in {GAITS[gait_end]} ({gait_from})" if gait_end else
+                     "gait at the end not recorded (no gait_change event with a gait)")
         if done:
             out.add("endurance", fid, "endurance_time", t / S_PER_MIN, "min",
-                    f"fatigue time − start of the set speed (fatigue from {source})")
+                    f"fatigue time − start of the set speed (fatigue from {source})", note=gait_note)
         else:
             out.add("endurance", fid, "endurance_time", t / S_PER_MIN, "min", "time limit (still swimming)",
-                    note="censored at the time limit: a lower bound, not a fatigue time")
+                    note=f"censored at the time limit: a lower bound, not a fatigue time; {gait_note}")
             out.flags.append(checks.flag(
                 "ENDURANCE_CENSORED",
                 f"Fish {fid} has no fatigue recorded within the {p.time_limit_min:g} min limit: taken as still "
@@ -1095,6 +1121,9 @@ class EnduranceSummary:
         Why a part was not computed, one sentence each.
     flags
         Flags of the fits.
+    by_gait
+        :func:`swimlab.protocols.endurance.fatigue_curves_by_gait` on the same speeds, when any
+        fish's gait at the end was recorded; else None.
     """
 
     protocol: str
@@ -1106,6 +1135,7 @@ class EnduranceSummary:
     half_fatigued: endurance.SpeedAtShare | None
     problems: tuple[str, ...]
     flags: tuple[dict, ...]
+    by_gait: endurance.GaitCurves | None = None
 
 
 def endurance_summary(items: Sequence[tuple[Session, Analysis]]) -> EnduranceSummary | None:
@@ -1154,6 +1184,7 @@ def endurance_summary(items: Sequence[tuple[Session, Analysis]]) -> EnduranceSum
         "set_speed_cm_s": set_u / CM,
         "corrected_speed_cm_s": [np.nan if o.corrected_speed_m_s is None else o.corrected_speed_m_s / CM for o in outcomes],
         "time_min": times / S_PER_MIN, "fatigued": fatigued, "time_limit_min": limit / S_PER_MIN,
+        "gait": [o.gait or "" for o in outcomes],
     })
     km = endurance.kaplan_meier_by_speed(set_u, times, fatigued)
     km.insert(1, "set_speed_cm_s", km["speed_m_s"] / CM)
@@ -1170,7 +1201,79 @@ def endurance_summary(items: Sequence[tuple[Session, Analysis]]) -> EnduranceSum
         problems.append(f"no fatigue curve: {exc.reason}")
     if not have_cor:
         problems.append("the fatigue curve uses set speeds: not every fish has a blocking-corrected speed")
-    return EnduranceSummary("endurance", fish, limit, km, fit, mss, half, tuple(problems), tuple(flags))
+    by_gait = None
+    gaits = [o.gait for o in outcomes]
+    if any(gaits):
+        try:
+            by_gait = endurance.fatigue_curves_by_gait(fit_u, times, fatigued, gaits, time_limit_s=limit)
+            flags.extend(by_gait.flags)  # gaits without a curve of their own: see gait_curve_sentences
+        except InputError as exc:
+            problems.append(f"no fatigue curves per gait: {exc.reason}")
+    return EnduranceSummary("endurance", fish, limit, km, fit, mss, half, tuple(problems), tuple(flags), by_gait)
+
+
+GAIT_CURVE_COLUMNS = ["gait", "label", "n_fish", "n_fatigued", "n_censored", "intercept_log10_s",
+                      "slope_log10_s_per_m_s", "slope_se", "sigma_log10_s", "median_time_at_fastest_min", "fitted"]
+"""Columns of :func:`gait_curve_table`."""
+
+
+def gait_curve_table(summary: EnduranceSummary | None) -> pd.DataFrame:
+    """One row per gait of an endurance summary: its censored fatigue curve, or why it has none.
+
+    ``fitted`` is False for a gait with too few trials (its parameters are empty; see
+    ``summary.by_gait.too_few``). Parameters are of log10 T [s] = intercept + slope · U [m/s].
+    """
+    by = None if summary is None else summary.by_gait
+    if by is None:
+        return pd.DataFrame(columns=GAIT_CURVE_COLUMNS)
+    rows = []
+    fish = summary.fish
+    for gait_name in sorted(by.n_fish, key=lambda g: list(GAITS).index(g) if g in GAITS else 99):
+        own = fish[fish["gait"] == gait_name]
+        fit = by.curves.get(gait_name)
+        fastest = own["corrected_speed_cm_s"].max() if own["corrected_speed_cm_s"].notna().all() else own["set_speed_cm_s"].max()
+        rows.append({
+            "gait": gait_name, "label": GAITS.get(gait_name, gait_name), "n_fish": int(len(own)),
+            "n_fatigued": int(own["fatigued"].sum()), "n_censored": int((~own["fatigued"].astype(bool)).sum()),
+            "intercept_log10_s": np.nan if fit is None else fit.intercept,
+            "slope_log10_s_per_m_s": np.nan if fit is None else fit.slope,
+            "slope_se": np.nan if fit is None or fit.slope_se is None else fit.slope_se,
+            "sigma_log10_s": np.nan if fit is None else fit.sigma,
+            "median_time_at_fastest_min": np.nan if fit is None else float(fit.median_time_s(fastest * CM)) / S_PER_MIN,
+            "fitted": fit is not None,
+        })
+    return pd.DataFrame(rows, columns=GAIT_CURVE_COLUMNS)
+
+
+def gait_curve_sentences(summary: EnduranceSummary | None) -> list[str]:
+    """Plain sentences on the fatigue curves per gait (for the page, the report and the command line)."""
+    by = None if summary is None else summary.by_gait
+    if by is None:
+        return []
+    out = []
+    for row in gait_curve_table(summary).itertuples(index=False):
+        if row.fitted:
+            out.append(f"{row.label}: {row.n_fish} fish ({row.n_censored} censored), log10 T [s] = "
+                       f"{row.intercept_log10_s:.3g} {'−' if row.slope_log10_s_per_m_s < 0 else '+'} "
+                       f"{abs(row.slope_log10_s_per_m_s) / 100:.3g} × U [cm/s] (slope SE {row.slope_se / 100:.2g}; "
+                       f"residual SD {row.sigma_log10_s:.2g} in log10 T)")
+        else:
+            out.append(f"{row.label}: no curve of its own — {by.too_few[row.gait]}")
+    if by.lr_p is not None:
+        out.append(f"One curve per gait against one pooled curve: likelihood ratio {by.lr_statistic:.3g} on {by.lr_df} "
+                   f"df, p = {by.lr_p:.2g} (Wilks 1938)"
+                   + ("; the gaits' fatigue curves differ" if by.lr_p < 0.05 else
+                      "; these data do not show the curves to differ"))
+    if by.break_speed_m_s is not None:
+        if by.lr_p is not None and by.lr_p < 0.05:
+            out.append(f"The two gaits' median-endurance lines meet at {by.break_speed_m_s / CM:.1f} cm/s (the break "
+                       "between their domains)")
+        else:
+            out.append(f"The two gaits' lines would meet at {by.break_speed_m_s / CM:.1f} cm/s, but these data do not "
+                       "show a break there")
+    if by.not_recorded:
+        out.append(f"{by.not_recorded} fish without a recorded gait at the end are in the pooled curve only")
+    return out
 
 
 @dataclass(frozen=True)

@@ -191,6 +191,10 @@ REFERENCES = {
         "Zhang, Y. & Lauder, G. V. (2023). Energy conservation by collective movement in schooling fish. eLife 12, "
         "RP90352."
     ),
+    "Wilks 1938": (
+        "Wilks, S. S. (1938). The large-sample distribution of the likelihood ratio for testing composite "
+        "hypotheses. Annals of Mathematical Statistics 9, 60–62."
+    ),
     "Fieller 1954": (
         "Fieller, E. C. (1954). Some problems in interval estimation. Journal of the Royal Statistical Society, "
         "Series B 16, 175–185."
@@ -2820,6 +2824,24 @@ def _study_protocol_blocks(items: Sequence[tuple[Session, Any]], figure_from: in
         blocks.append({"kind": "p", "text": txt})
         if es.problems:
             blocks.append(_box("warning", "Endurance summary", [_sentence(x) + "." for x in es.problems]))
+        if es.by_gait is not None:
+            from swimlab.protocol_analysis import gait_curve_sentences, gait_curve_table
+
+            blocks.append({"kind": "p", "text": (
+                "Fatigue curves per gait: each trial is sorted by the gait it ended in (the last gait change with a "
+                "recorded gait at or before fatigue or the time limit), and each gait with at least four fish, three "
+                "of them fatigued, at two or more speeds gets its own censored fit (Tobin 1958), since steady and "
+                "burst-assisted swimming are separate endurance domains (Brett 1964; Beamish 1978). "
+                + " ".join(_sentence(x) + "." for x in gait_curve_sentences(es)))})
+            gt = gait_curve_table(es)
+            blocks.append(_display(
+                gt, [("Gait at the end", "label", str), ("Fish", "n_fish", _int_fmt), ("Censored", "n_censored", _int_fmt),
+                     ("Intercept\n[log₁₀ s]", "intercept_log10_s", _num(4)),
+                     ("Slope\n[log₁₀ s per cm/s]", lambda r: r["slope_log10_s_per_m_s"] / 100.0, _num()),
+                     ("SE", lambda r: r["slope_se"] / 100.0, _num(2)), ("Residual SD", "sigma_log10_s", _num(2)),
+                     ("Own curve", lambda r: "yes" if r["fitted"] else "too few trials", str)],
+                "Endurance: censored fatigue curves per gait, log₁₀ T [s] = intercept + slope × U."))
+            tables["endurance_fatigue_curves_by_gait"] = gt
         blocks.append(_display(
             es.kaplan_meier,
             [("U set\n[cm/s]", "set_speed_cm_s", format_entered), ("Time\n[min]", "time_min", _num()),

@@ -21,7 +21,8 @@ from swimlab.io.bundle import SESSION_JSON, read_bundle, schema_path, write_bund
 from swimlab.store import LabBook
 
 ROOT = Path(__file__).resolve().parent.parent
-COMMANDS = ["import-bundle", "export", "analyse", "report", "list", "check-bundle", "schema", "people"]
+COMMANDS = ["import-bundle", "export", "analyse", "fatigue-curves", "report", "list", "check-bundle", "schema",
+            "people"]
 
 
 @pytest.fixture

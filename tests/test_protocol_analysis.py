@@ -613,7 +613,7 @@ def test_demo_protocol_trials_recover_their_truth(demo_items):
     assert gait_a.protocol.gait["BW26-W01"].upc_step == _truth("bw26-w01-gait-kinematics")["upc_step"]
     assert "kinematics" in gait_a.protocol.tables
     summary = endurance_summary(list(demo_items.values()))
-    truths = [_truth(n) for n in demo_items if "-e0" in n]
+    truths = [_truth(n) for n in demo_items if n.endswith("-endurance")]
     assert summary.fish["fatigued"].sum() == sum(t["fatigued"] for t in truths)
     assert 0 < summary.fish["fatigued"].sum() < len(truths)  # some fish still swimming at the limit
     for problem in (p for _, a in demo_items.values() for p in a.protocol.problems):
@@ -709,3 +709,43 @@ def test_repeat_interval_widens_when_the_swims_used_different_flumes(demo_items)
     # two independent 2 % calibrations: relative SE ≈ 0.02·√2, far above the timing term
     assert rr.se / rr.ratio == pytest.approx(0.02 * math.sqrt(2), rel=0.05)
     assert rr.ci_high - rr.ci_low > 10 * (shared.ci_high - shared.ci_low)
+
+
+def test_demo_endurance_series_gives_one_fatigue_curve_per_gait(demo_items):
+    # The demo's truth: steady caudal swimming on log10 T = 6.2 − 4.0 U, burst-and-coast on the
+    # steeper 9.28 − 8.0 U (set speed, m/s). Every trial's gait at the end is read from its events.
+    from swimlab.protocol_analysis import gait_curve_sentences, gait_curve_table
+
+    summary = endurance_summary(list(demo_items.values()))
+    names = sorted(n for n in demo_items if n.endswith("-endurance"))
+    assert list(summary.fish["gait"]) == [_truth(n)["gait_at_end"] for n in names]
+    by = summary.by_gait
+    assert set(by.curves) == {"steady_caudal", "burst_and_coast"} and not by.too_few
+    steady, burst = by.curves["steady_caudal"], by.curves["burst_and_coast"]
+    assert burst.slope < steady.slope < 0  # endurance falls faster in the burst-assisted domain
+    # Corrected speeds are set speeds × (1 + ε) with ε ≈ 1–2 %, so the true slopes on them are
+    # slightly shallower than on set speed; within 3 standard errors of truth (seeded demo):
+    for fit, truth in ((steady, -4.0), (burst, -8.0)):
+        assert abs(fit.slope - truth) < 3 * fit.slope_se
+    table = gait_curve_table(summary)
+    assert list(table["gait"]) == ["steady_caudal", "burst_and_coast"] and table["fitted"].all()
+    assert any("likelihood ratio" in line for line in gait_curve_sentences(summary))
+
+
+def test_fatigue_curves_per_gait_on_the_figure_and_the_command_line(demo_items, capsys, tmp_path):
+    from swimlab import plots
+    from swimlab.cli import main
+
+    summary = endurance_summary(list(demo_items.values()))
+    fig = plots.fatigue_curve_figure(summary)
+    names = [t.name for t in fig.data]
+    assert "steady caudal: median endurance (censored fit)" in names
+    assert "burst-and-coast: median endurance (censored fit)" in names
+    assert "all fish pooled: median endurance" in names
+    bundles = [str(DEMO / n) for n in sorted(demo_items) if n.endswith("-endurance")]
+    assert main(["fatigue-curves", *bundles, "--out", str(tmp_path)]) == 0
+    out = capsys.readouterr().out
+    assert "12 fish, 3 still swimming at the 120 min limit" in out
+    assert "per gait: burst-and-coast (unsteady, burst-assisted) swimming: 6 fish (0 censored)" in out
+    assert (tmp_path / "fatigue_curves_by_gait.csv").is_file()
+    assert main(["fatigue-curves", str(DEMO / "bw26-t01-clean-ucrit")]) == 2

@@ -259,3 +259,87 @@ def test_max_sustained_speed_hand_worked():
 def test_max_sustained_speed_none_when_slowest_fails():
     res = E.max_sustained_speed([0.4, 0.5], [100.0, 50.0], [True, True], 600.0)
     assert res.speed_m_s is None
+
+
+# --- fatigue curves per gait --------------------------------------------------------------------
+
+
+def _gait_sample():
+    return pd.read_csv(DATA / "protocols_endurance_gait_sample.csv")
+
+
+@pytest.mark.parametrize("row", pd.read_csv(DATA / "protocols_lognormal_aft_by_gait_lifelines.csv").to_dict("records"))
+def test_fatigue_curve_per_gait_matches_lifelines(row):
+    # Reference: lifelines LogNormalAFTFitter on each gait's fish alone
+    # (tests/data/protocols_gait_lifelines_reference.py); 15 of the 24 steady fish are censored.
+    data = _gait_sample()
+    res = E.fatigue_curves_by_gait(data.speed_m_s, data.time_s, data.fatigued.astype(bool), data.gait,
+                                   time_limit_s=7200.0)
+    fit = res.curves[row["gait"]]
+    if row["parameter"] == "log_likelihood_ln":
+        own = data[data.gait == row["gait"]]
+        e = own.fatigued.astype(bool)
+        ll_ln = fit.log_likelihood - e.sum() * math.log(math.log(10)) - np.log(own.time_s[e]).sum()
+        assert ll_ln == pytest.approx(row["expected"], abs=row["tolerance"])
+        return
+    assert getattr(fit, row["parameter"]) == pytest.approx(row["expected"], abs=row["tolerance"])
+    assert getattr(fit, row["parameter"] + "_se") == pytest.approx(row["expected_se"], rel=1e-3)
+
+
+def _two_gaits(seed, per_speed=10, same_curve=False):
+    """Simulation with known truth: steady caudal below 0.75 m/s, burst-and-coast above."""
+    rng = np.random.default_rng(seed)
+    u_s = np.repeat([0.40, 0.50, 0.60, 0.70], per_speed)
+    u_b = np.repeat([0.75, 0.85, 0.95], per_speed)
+    a_b, b_b = (5.6, -2.8) if same_curve else (8.9, -7.2)
+    t = np.r_[10 ** (5.6 - 2.8 * u_s + 0.25 * rng.standard_normal(u_s.size)),
+              10 ** (a_b + b_b * u_b + 0.20 * rng.standard_normal(u_b.size))]
+    u = np.r_[u_s, u_b]
+    gait = np.r_[["steady_caudal"] * u_s.size, ["burst_and_coast"] * u_b.size]
+    done = t <= 7200.0
+    return u, np.where(done, t, 7200.0), done, gait
+
+
+def test_fatigue_curves_per_gait_recover_simulated_truth_and_their_break():
+    u, t, e, g = _two_gaits(404)
+    res = E.fatigue_curves_by_gait(u, t, e, g, time_limit_s=7200.0)
+    steady, burst = res.curves["steady_caudal"], res.curves["burst_and_coast"]
+    # within 3 standard errors of the truth (seeded)
+    assert abs(steady.slope + 2.8) < 3 * steady.slope_se and abs(burst.slope + 7.2) < 3 * burst.slope_se
+    assert abs(steady.intercept - 5.6) < 3 * steady.intercept_se
+    # one pooled line through both domains is rejected (Wilks 1938 likelihood ratio, 3 df)
+    assert res.lr_df == 3 and res.lr_p < 1e-3
+    assert res.lr_statistic == pytest.approx(
+        2 * (steady.log_likelihood + burst.log_likelihood - res.pooled.log_likelihood), rel=1e-12)
+    # the lines meet where 5.6 − 2.8 U = 8.9 − 7.2 U, U = 0.75 m/s
+    assert res.break_speed_m_s == pytest.approx(0.75, abs=0.04)
+    assert res.n_fish == {"steady_caudal": 40, "burst_and_coast": 30} and res.not_recorded == 0
+
+
+def test_one_curve_across_gaits_is_rarely_rejected():
+    # Simulation: both gaits on the same line. The LR test at 5 % should reject about 1 in 20;
+    # 40 replicates: binomial mean 2, sd 1.4, so at most 7 (3.6 sd) rejections.
+    rejected = 0
+    for seed in range(40):
+        u, t, e, g = _two_gaits(seed, per_speed=6, same_curve=True)
+        rejected += E.fatigue_curves_by_gait(u, t, e, g).lr_p < 0.05
+    assert rejected <= 7
+
+
+def test_a_gait_with_too_few_trials_gets_no_curve_and_says_why():
+    u, t, e, g = _two_gaits(9)
+    keep = np.r_[np.arange(40), 40, 50, 60]  # three burst fish only
+    g = g.astype(object)
+    g[5] = None  # one steady fish without a recorded gait
+    res = E.fatigue_curves_by_gait(u[keep], t[keep], e[keep], g[keep])
+    assert set(res.curves) == {"steady_caudal"}
+    assert "3 fish (3 fatigued) at 3 speed(s)" in res.too_few["burst_and_coast"]
+    assert "at least 4 fish" in res.too_few["burst_and_coast"]
+    assert res.not_recorded == 1 and res.lr_p is None and res.break_speed_m_s is None
+
+
+def test_gait_of_the_wrong_length_names_the_field():
+    u, t, e, g = _two_gaits(1)
+    with pytest.raises(InputError) as err:
+        E.fatigue_curves_by_gait(u, t, e, g[:-1])
+    assert err.value.field == "gait"

@@ -9,6 +9,9 @@ limit as its fatigue time, biases endurance low).
 - :func:`kaplan_meier` is the share of fish still swimming against time (Kaplan & Meier 1958).
 - :func:`fatigue_curve` fits log10 endurance time on speed by a censored normal (Tobit)
   likelihood (Tobin 1958), the log-linear fatigue curve of Brett (1964) with censoring handled.
+- :func:`fatigue_curves_by_gait` fits that curve separately for each gait the trials ended in
+  (the steady and the burst-assisted domains of Brett 1964 and Beamish 1978), tests whether
+  separate curves describe the data better than one, and gives the speed where they meet.
 - :func:`max_sustained_speed` is the highest tested speed no fish failed within the limit.
 - :func:`speed_half_fatigued` is the speed at which half the fish fatigue within the limit.
 """
@@ -35,6 +38,8 @@ __all__ = [
     "kaplan_meier_by_speed",
     "FatigueCurveFit",
     "fatigue_curve",
+    "GaitCurves",
+    "fatigue_curves_by_gait",
     "MaxSustainedSpeed",
     "max_sustained_speed",
     "SpeedAtShare",
@@ -422,6 +427,148 @@ def fatigue_curve(
         method="tobin1958",
         flags=tuple(flags),
     )
+
+
+# --------------------------------------------------------------------------------------------
+# Fatigue curves per gait
+# --------------------------------------------------------------------------------------------
+
+MIN_FISH_PER_GAIT = 4
+"""Fewest fish of one gait for its own curve. [-] Our rule: three parameters (a, b, σ) need at
+least one fish beyond them."""
+MIN_FATIGUED_PER_GAIT = 3
+"""Fewest fish of one gait that fatigued within the limit. [-] Our rule: censored fish bound the
+line only from one side, so the slope needs fatigue times at more than two points."""
+
+
+@dataclass(frozen=True)
+class GaitCurves:
+    """Fatigue curves fitted separately for each gait the endurance trials ended in.
+
+    Attributes
+    ----------
+    protocol
+        ``"endurance"``.
+    curves
+        Gait → :class:`FatigueCurveFit` for each gait with enough trials.
+    too_few
+        Gait → why it has no curve of its own (counts and the rule).
+    n_fish
+        Gait → fish of that gait (including gaits without a curve). [-]
+    not_recorded
+        Fish whose gait was not recorded (in no per-gait curve). [-]
+    pooled
+        The single curve through every fish with a gait in ``curves`` (for the test), or None.
+    lr_statistic, lr_df, lr_p
+        Likelihood-ratio test of one curve per gait against the pooled curve: 2 (Σ log L_gait −
+        log L_pooled) against χ² with 3 (k − 1) degrees of freedom; None with fewer than two
+        curves.
+    break_speed_m_s
+        Speed where the median-endurance lines of two gaits cross, (a₂ − a₁) / (b₁ − b₂), or
+        None (not two curves, parallel, or outside the speeds tested). [m/s]
+    flags
+        The fits' flags.
+    """
+
+    protocol: str
+    curves: dict[str, FatigueCurveFit]
+    too_few: dict[str, str]
+    n_fish: dict[str, int]
+    not_recorded: int
+    pooled: FatigueCurveFit | None
+    lr_statistic: float | None
+    lr_df: int | None
+    lr_p: float | None
+    break_speed_m_s: float | None
+    flags: tuple[dict, ...]
+
+
+def fatigue_curves_by_gait(
+    speed_m_s: Any,
+    time_s: Any,
+    fatigued: Any,
+    gait: Any,
+    *,
+    time_limit_s: float | None = None,
+    min_fish: int = MIN_FISH_PER_GAIT,
+    min_fatigued: int = MIN_FATIGUED_PER_GAIT,
+    settings: LabSettings = DEFAULT_SETTINGS,
+) -> GaitCurves:
+    """Fit the censored fatigue curve (:func:`fatigue_curve`) separately for each gait.
+
+    Parameters
+    ----------
+    speed_m_s, time_s, fatigued
+        As for :func:`fatigue_curve`, one per fish. [m/s], [s], [-]
+    gait
+        The gait each fish's trial ended in (e.g. ``"steady_caudal"``, ``"burst_and_coast"``);
+        ``None`` or ``""`` where it was not recorded.
+    time_limit_s
+        The trials' time limit, if times are to be checked against it. [s]
+    min_fish, min_fatigued
+        Fewest fish, and fewest that fatigued, for a gait to get its own curve. [-]
+    settings
+        Lab settings, for the fits' flags.
+
+    Returns
+    -------
+    GaitCurves
+
+    Raises
+    ------
+    InputError
+        Mismatched lengths (field ``gait``), or as :func:`fatigue_curve`.
+
+    Notes
+    -----
+    Brett (1964) and Beamish (1978) divide swimming into sustained, prolonged and burst
+    performance: within the prolonged range log endurance falls linearly with speed, and the
+    line breaks where the fish turn to burst-assisted (unsteady, anaerobically fuelled)
+    swimming, whose endurance falls far more steeply (from memory). One line per gait, each by
+    the censored normal likelihood of Tobin (1958), keeps the two domains apart. A gait needs
+    ``min_fish`` fish, ``min_fatigued`` of them fatigued and two distinct speeds; a gait with
+    fewer is named in ``too_few`` rather than fitted. Whether separate curves are needed is the
+    likelihood-ratio test against one pooled curve through the same fish (Wilks 1938; nested
+    models, 3 parameters per curve).
+    """
+    u = np.atleast_1d(_validate.positive("speed_m_s", speed_m_s, "m/s")).astype(float)
+    t, e = _outcomes(time_s, fatigued)
+    raw_gait = gait.to_numpy() if isinstance(gait, pd.Series) else np.asarray(gait, dtype=object)
+    labels = np.array(["" if g is None or (isinstance(g, float) and math.isnan(g)) else str(g)
+                       for g in np.atleast_1d(raw_gait)], dtype=object)
+    if not (u.shape == t.shape == labels.shape):
+        raise InputError(f"speed_m_s, time_s and gait must have one value per fish ({t.size}); got "
+                         f"{u.size}, {t.size} and {labels.size}", field="gait")
+    curves: dict[str, FatigueCurveFit] = {}
+    too_few: dict[str, str] = {}
+    counts: dict[str, int] = {}
+    flags: list[dict] = []
+    for name in sorted(set(labels) - {""}):
+        sel = labels == name
+        counts[name] = int(sel.sum())
+        n_fat, n_speeds = int(e[sel].sum()), int(np.unique(u[sel]).size)
+        if sel.sum() < min_fish or n_fat < min_fatigued or n_speeds < 2:
+            too_few[name] = (f"{int(sel.sum())} fish ({n_fat} fatigued) at {n_speeds} speed(s); a curve of its own "
+                             f"needs at least {min_fish} fish, {min_fatigued} fatigued, at two or more speeds")
+            continue
+        fit = fatigue_curve(u[sel], t[sel], e[sel], time_limit_s=time_limit_s, settings=settings)
+        curves[name] = fit
+        flags.extend({**f, "message": f"{name}: {f['message']}"} for f in fit.flags)
+    pooled = lr = df = p_value = crossing = None
+    if len(curves) >= 2:
+        sel = np.isin(labels, list(curves))
+        pooled = fatigue_curve(u[sel], t[sel], e[sel], time_limit_s=time_limit_s, settings=settings)
+        lr = max(0.0, 2.0 * (sum(c.log_likelihood for c in curves.values()) - pooled.log_likelihood))
+        df = 3 * (len(curves) - 1)
+        p_value = float(stats.chi2.sf(lr, df))
+        if len(curves) == 2:
+            (c1, c2) = curves.values()
+            if c1.slope != c2.slope:
+                cross = (c2.intercept - c1.intercept) / (c1.slope - c2.slope)
+                if float(u[sel].min()) <= cross <= float(u[sel].max()):
+                    crossing = float(cross)
+    return GaitCurves(PROTOCOL, curves, too_few, counts, int((labels == "").sum()), pooled, lr, df, p_value,
+                      crossing, tuple(flags))
 
 
 # --------------------------------------------------------------------------------------------
