@@ -1529,7 +1529,7 @@ def _read(data: bytes, name: str, mapping: ColumnMapping, gap_factor: float) -> 
     for col in oxygen_cols + temp_cols:
         arr = table.column(col)
         if pa.types.is_floating(arr.type):
-            # Values are taken later, for the kept readings only (:func:`_kept_floats`).
+            # Values are taken later, for the kept readings only (:func:`_float_values_of`).
             empty = pc.is_null(arr).to_numpy(zero_copy_only=False) if arr.null_count else None
             cells[col] = _Cells(None, empty, None, _float_text_of(arr))
         else:
