@@ -229,6 +229,14 @@ for part in pr.parts:
         continue
     st.subheader(PART_LABELS[part])
     st.dataframe(ui_forms.results_display(rows), hide_index=True, width="stretch")
+    if part == "repeat" and str(fish_id) in pr.repeat and pr.repeat[str(fish_id)].ci_low is not None:
+        rr_shown = pr.repeat[str(fish_id)]
+        calib = ("one speed calibration shared by both swims, which cancels in the ratio"
+                 if "cancels" in rr_shown.uncertainty else "two separate speed calibrations")
+        st.caption(f"The 95 % interval of this one pair covers measurement uncertainty only: the fatigue times known "
+                   f"within {analysis.settings.fatigue_time_uncertainty_s:g} s (a lab setting, taken as uniform) and "
+                   f"{calib} (Fieller 1954). How much a fish's Ucrit varies between swims is not in it; compare with "
+                   "the spread across pairs below.")
     if part in FIGURES:
         builder, name = FIGURES[part]
         fig = builder(pr, fish_id)

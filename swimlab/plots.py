@@ -263,7 +263,7 @@ def _fish_steps(steps: pd.DataFrame, fish_id: str) -> pd.DataFrame:
     return part.sort_values("corrected_speed_cm_s")
 
 
-GROUP_WARNING = ("Group trial: MO2 per capita (group MO2 ÷ summed mass). Schooling changes the cost of swimming: "
+GROUP_WARNING = ("Group trial: MO2 per capita (group MO2 ÷ summed mass).<br>Schooling changes the cost of swimming: "
                  "not comparable with fish swum alone.")
 """The warning every figure of a group trial carries (see :data:`swimlab.checks.GROUP_CAVEAT`)."""
 
@@ -280,7 +280,7 @@ def _mark_group(fig: go.Figure, n_fish: int) -> None:
     """Put the group-trial warning on a figure, above the plot, and say per capita on the MO2 axis."""
     if n_fish <= 1:
         return
-    fig.add_annotation(text=f"⚠ {GROUP_WARNING} ({n_fish} fish)", xref="paper", yref="paper", x=0.0, y=1.0,
+    fig.add_annotation(text=f"⚠ {n_fish} fish swum together. {GROUP_WARNING}", xref="paper", yref="paper", x=0.0, y=1.0,
                        xanchor="left", yanchor="bottom", showarrow=False, align="left",
                        font={"size": 11, "color": "#9a3412"}, bgcolor="#fff7ed", bordercolor="#9a3412", borderwidth=1)
     fig.update_layout(margin={"t": 90})
@@ -583,7 +583,7 @@ def fatigue_curve_figure(summary: Any) -> go.Figure | None:
                                  name="all fish pooled: median endurance" if pooled else "median endurance (censored fit)",
                                  line={"color": "#777" if pooled else PROTOCOL_COLOURS[1],
                                        "width": 1.5 if pooled else 2, "dash": "dot" if pooled else "solid"}))
-    if by_gait is not None and by_gait.break_speed_m_s is not None:
+    if by_gait is not None and by_gait.break_speed_m_s is not None and by_gait.lr_p is not None and by_gait.lr_p < 0.05:
         fig.add_vline(x=by_gait.break_speed_m_s * 100.0, line={"color": "#555", "dash": "dashdot", "width": 1},
                       annotation_text=f"curves meet at {by_gait.break_speed_m_s * 100:.0f} cm/s",
                       annotation_position="top")
@@ -591,8 +591,10 @@ def fatigue_curve_figure(summary: Any) -> go.Figure | None:
     fig.add_trace(go.Scatter(x=x_ends, y=[summary.time_limit_s / 60.0] * 2, mode="lines", name="time limit",
                              line={"dash": "dash", "color": "#555"}))
     fig.update_layout(title="Endurance: fatigue curve" + (" per gait" if by_gait is not None and by_gait.curves else ""),
-                      xaxis={"title": "Speed, blocking-corrected [cm/s]" if use_cor else "Set speed [cm/s]"},
-                      yaxis={"title": "Time to fatigue [min]", "type": "log"}, template="plotly_white")
+                      xaxis={"title": "Speed, blocking-corrected [cm/s]" if use_cor else "Set speed [cm/s]",
+                             "range": x_ends},
+                      yaxis={"title": "Time to fatigue [min]", "type": "log"}, template="plotly_white",
+                      legend={"orientation": "h", "y": -0.25})
     return fig
 
 

@@ -789,7 +789,8 @@ def _repeat(session: Session, analysis: Analysis, first_swim: Analysis | None, o
         else:
             note = "no interval: the Ucrit values carry no step to model their uncertainty; see the study's group summary"
         out.add("repeat", fid, "repeat_recovery_ratio", rr.ratio, "-",
-                f"Ucrit₂ / Ucrit₁ (Jain, Birtwell & Farrell 1998) on {basis}{rest}",
+                f"Ucrit₂ / Ucrit₁ (Jain, Birtwell & Farrell 1998) on {basis}{rest}"
+                + ("; interval: measurement uncertainty only (Fieller 1954)" if rr.ci_low is not None else ""),
                 ci=(rr.ci_low, rr.ci_high), note=note)
         out.add("repeat", fid, "repeat_ucrit_first", rr.ucrit_1_m_s / CM, "cm/s",
                 f"Brett (1964), {basis}, session {first_swim.session_id}")

@@ -763,7 +763,7 @@ QUANTITY_NAMES = {
 
 UNIT_NAMES = {
     "mg O2 kg-1 h-1": "mg O₂/kg/h", "mg O2 kg-1 km-1": "mg O₂/kg/km", "-": "–", "m/s": "m/s",
-    "cm/s": "cm/s", "BL/s": "BL/s",
+    "cm/s": "cm/s", "BL/s": "BL/s", "mg O2 h-1": "mg O₂/h", "mg O2 kg-1": "mg O₂/kg",
 }
 """Units of the result table as a person reads them."""
 

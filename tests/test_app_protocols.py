@@ -11,7 +11,7 @@ from streamlit.testing.v1 import AppTest
 TIMEOUT = 90
 DEMO = ROOT / "demo_sessions"
 NAMES = ("bw26-r01-ramp", "bw26-v01-recovery-epoc", "bw26-p01-first-swim", "bw26-p02-second-swim",
-         "bw26-w01-gait-kinematics", *(f"bw26-e0{i}-endurance" for i in range(1, 7)))
+         "bw26-w01-gait-kinematics", "bw26-g01-group", *(f"bw26-e{i:02d}-endurance" for i in range(1, 13)))
 
 
 @pytest.fixture
@@ -84,9 +84,38 @@ def test_recovery_session_shows_epoc_and_refuses_too_short_a_recovery(lab):
 def test_endurance_session_shows_the_survival_across_fish(lab):
     at = _protocols(lab, "bw26-e04-endurance")
     assert "Endurance across fish" in _texts(at.header)
-    assert "**6** fish, **3** still swimming" in _texts(at.markdown)
+    assert "**12** fish, **3** still swimming" in _texts(at.markdown)
     assert len(at.get("plotly_chart")) == 2  # Kaplan–Meier and the fatigue curve
     assert at.metric[0].value == "50.0 cm/s"  # the demo's maximum sustained speed
+    # one censored fatigue curve per gait the trials ended in
+    assert "Endurance: fatigue curves per gait" in _texts(at.subheader)
+    gaits = next(d.value for d in at.dataframe if "label" in d.value.columns)
+    assert list(gaits["gait"]) == ["steady_caudal", "burst_and_coast"] and gaits["fitted"].all()
+    assert "likelihood ratio" in _texts(at.markdown)
+
+
+def test_group_trial_shows_its_warning_and_per_capita_values(lab):
+    at = _protocols(lab, "bw26-g01-group")
+    assert "Group trial (fish swum together; MO2 per capita)" in _texts(at.subheader)
+    warning = _texts(at.warning)
+    assert "Group BW26-G01" in warning and "not comparable with fish swum alone" in warning
+    assert "half group" in warning
+    assert "Group trial: highest step-mean MO2 per fish" in _quantities(at)
+
+
+def test_group_trial_results_page_warns(lab):
+    stored = lab.get_session("bw26-g01-group")
+    at = AppTest.from_file(str(ROOT / "app_pages" / "results.py"), default_timeout=TIMEOUT)
+    doc = stored.session.to_json_dict()
+    at.session_state["app_work"] = doc
+    at.session_state["app_session_id"] = "bw26-g01-group"
+    at.session_state["app_version"] = stored.version
+    at.session_state["app_status"] = stored.status
+    at.session_state["app_saved_json"] = json.dumps(doc, sort_keys=True, default=str)
+    at.run()
+    assert not at.exception, at.exception
+    assert "Schooling changes the cost of swimming" in _texts(at.warning)
+    assert at.metric[0].label == "Ucrit"
 
 
 def test_repeat_swim_is_analysed_with_its_first_swim(lab):
@@ -95,6 +124,7 @@ def test_repeat_swim_is_analysed_with_its_first_swim(lab):
     assert first.value == "bw26-p01-first-swim"
     assert "Repeat swim (recovery ratio)" in _texts(at.subheader)
     assert "Repeat-swim recovery ratio" in _quantities(at)
+    assert "covers measurement uncertainty only" in _texts(at.caption)
     assert "Repeat swims across fish" in _texts(at.header)
     # unlinking the first swim: the page says the ratio needs it
     first.set_value("").run()
