@@ -196,7 +196,10 @@ def analyse(
         phases, measure, concentration, windows = _uptake(session, settings, logged, flags)
 
     steps_sched = pd.DataFrame(step_table(session), columns=["step", "start_s", "end_s", "set_speed_m_s"])
-    measure = _assign_steps(measure, steps_sched, session)
+    group_fatigue = groups["fatigue_time_s"].dropna() if not groups.empty else pd.Series(dtype=float)
+    measure = _assign_steps(measure, steps_sched, session,
+                            fatigue_s=None if session.protocol.fatigue_time_s is not None or group_fatigue.empty
+                            else float(group_fatigue.min()))
     steps = _steps(session, steps_sched, measure, water_props, section_area, calibration, flags)
     sample_interval_s = _sample_interval(traces)
     results, fits, ucrits, steps = _performance(
@@ -512,11 +515,14 @@ def _window_mo2(windows, phases_used, session, settings, mass_kg, sample_interva
     return np.asarray(uptake.mass_specific(mo2_h, mass_kg), dtype=float)
 
 
-def _assign_steps(measure: pd.DataFrame, steps_sched: pd.DataFrame, session: Session) -> pd.DataFrame:
+def _assign_steps(measure: pd.DataFrame, steps_sched: pd.DataFrame, session: Session,
+                  fatigue_s: float | None = None) -> pd.DataFrame:
     """Label each measure phase with the speed step it lies in (0 = before the first step).
 
     A phase belongs to a step when its mid-time falls inside the step; a phase after fatigue
-    (or after the last step) is labelled ``-1`` and is not used for the speed–MO2 curve.
+    (or after the last step) is labelled ``-1`` and is not used for the speed–MO2 curve. The
+    fatigue time is ``protocol.fatigue_time_s``, or ``fatigue_s`` when that is not entered (a
+    group's fatigue read from its fish's events).
     """
     if measure.empty:
         return measure
@@ -528,7 +534,7 @@ def _assign_steps(measure: pd.DataFrame, steps_sched: pd.DataFrame, session: Ses
         idx = np.searchsorted(starts, mid, side="right") - 1
         inside = (idx >= 0) & (mid < ends[np.clip(idx, 0, None)])
         step = np.where(inside, steps_sched["step"].to_numpy()[np.clip(idx, 0, None)], np.where(mid >= ends[-1], -1, 0))
-    fatigue = session.protocol.fatigue_time_s
+    fatigue = session.protocol.fatigue_time_s if session.protocol.fatigue_time_s is not None else fatigue_s
     if fatigue is not None:
         step = np.where(measure["end_s"].to_numpy() > fatigue, np.where(mid > fatigue, -1, step), step)
     return measure.assign(step=step.astype(int))

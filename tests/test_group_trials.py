@@ -309,3 +309,17 @@ def test_command_line_warns_on_the_demo_group_trial(capsys, tmp_path):
     assert "not comparable with fish swum alone" in out
     assert (tmp_path / "out" / "groups.csv").is_file()
     assert "[group] BW26-G01  Group trial: highest step-mean MO2 per fish" in out
+
+
+def test_phases_after_a_group_fatigue_read_from_events_are_not_used(simulated):
+    trial, session, raw = simulated
+    data = session.to_json_dict()
+    data["protocol"]["fatigue_time_s"] = None
+    t = REST_S + 3 * STEP_S + 0.5 * STEP_S  # the first fish fatigues half way through step 4
+    data["events"] = [{"time_s": t, "kind": "fatigue", "fish_id": "G2"}]
+    result = analyse(Session.from_json_dict(data), raw, n_boot=20)
+    m = result.measure
+    mid = (m["start_s"] + m["end_s"]) / 2
+    assert (m.loc[mid > t, "step"] == -1).all() and (m.loc[mid > t + 1, "step"] == -1).any()
+    assert result.steps.set_index("step").loc[5, "n_phases"] == 0
+    assert result.result("GRP", "ucrit_set") == pytest.approx(40.0, rel=1e-9)  # 0.35 + 0.5 · 0.10 m/s
