@@ -8,13 +8,15 @@ on all steps alike), and prints the median over rounds of
 
 - the bare pandas parse of the CSV bytes with the C and the pyarrow engine (the faster is the
   yardstick),
-- the swimlab import (:func:`swimlab.io.logger.read_logger`, mapping guessed), and apart from it
+- the swimlab import (:func:`swimlab.io.logger.read_logger`) of a file whose column mapping is
+  remembered (as :func:`swimlab.analysis.analyse` reads a session's raw file, with the mapping
+  stored beside it) and of a first file (mapping guessed), and apart from it
   the SHA-256 of the raw bytes (computed once, where a raw file is kept: the lab book, a bundle
   or the app's upload; an analysis reads the file by that checksum and does not hash it again),
 - the analysis steps: unit conversion, phases from the pump, slopes, MO2 (background and uptake),
   and, beyond the target's analysis, the phase flags and the steepest 60 s windows (for MMR),
-- import + analysis run end to end (file bytes to the MO2 table), and the same with flags and
-  windows,
+- import (mapping remembered) + analysis run end to end (file bytes to the MO2 table), and the
+  same with flags and windows,
 
 their ratios to the bare parse (ratio of medians, and the median of each round's own ratio), the
 process CPU time of each step, and the peak memory of one import + analysis (tracemalloc) and of
@@ -41,7 +43,7 @@ import pandas as pd  # noqa: E402
 
 from swimlab import trace, uptake  # noqa: E402
 from swimlab.io.checksum import sha256_hex  # noqa: E402
-from swimlab.io.logger import read_logger  # noqa: E402
+from swimlab.io.logger import ColumnMapping, guess_mapping, read_logger  # noqa: E402
 from swimlab.sim import simulate_trial  # noqa: E402
 
 
@@ -76,8 +78,10 @@ def main() -> None:
     def parse(engine: str):
         return pd.read_csv(io.BytesIO(data), engine=engine)
 
-    def do_import():
-        return read_logger(data, name="bench.csv")
+    mapping = guess_mapping(data, name="bench.csv")
+
+    def do_import(known: ColumnMapping | None = mapping):
+        return read_logger(data, name="bench.csv", mapping=known)
 
     def analysis(logged, *, extra: bool):
         ts, ox, tc = logged.time_s, logged.oxygen, logged.temperature_c
@@ -101,6 +105,7 @@ def main() -> None:
         "parse_c": lambda: parse("c"),
         "parse_pyarrow": lambda: parse("pyarrow"),
         "import": do_import,
+        "import_guess": lambda: do_import(None),
         "sha256": lambda: sha256_hex(data),
         "conv": lambda: trace.concentration_from_trace(oxy, logged.oxygen_unit, temps, truth.salinity,
                                                        truth.pressure_pa),
@@ -161,7 +166,8 @@ def main() -> None:
     line("bare pandas parse, C engine", "parse_c")
     line("bare pandas parse, pyarrow engine", "parse_pyarrow")
     print(f"  (yardstick: the faster, {bare_engine}; x/round divides by each round's faster parse)")
-    line("swimlab import (read_logger)", "import")
+    line("swimlab import (read_logger), mapping known", "import")
+    line("  the same, mapping guessed (a first file)", "import_guess")
     line("  SHA-256 of the raw bytes (when kept)", "sha256")
     line("  unit conversion", "conv")
     line("  phases from pump", "phases")
