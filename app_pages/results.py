@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 
+import pandas as pd
 import streamlit as st
 
 from app_pages import common
@@ -102,7 +103,19 @@ STEP_COLUMNS = {
     "cot_net_mg_kg_km": st.column_config.NumberColumn("Net COT [mg O2/kg/km]", format="%.1f"),
     "cot_gross_j_kg_m": st.column_config.NumberColumn("Gross COT [J/kg/m]", format="%.2f"),
 }
-st.dataframe(own[[c for c in STEP_COLUMNS if c in own]], hide_index=True, width="stretch", column_config=STEP_COLUMNS)
+shown = own[[c for c in STEP_COLUMNS if c in own]].copy()
+drag_cols = [c for c in ("drag_mn", "drag_power_mw") if c in shown]
+no_drag = bool(drag_cols) and not shown.empty and shown[drag_cols].isna().all().all()
+if no_drag:
+    shown = shown.drop(columns=drag_cols)
+for col in shown.columns:  # numbers missing as None show as blank cells, not the word None
+    if col != "flow_regime" and shown[col].dtype == object:
+        shown[col] = pd.to_numeric(shown[col], errors="coerce")
+st.dataframe(shown, hide_index=True, width="stretch", column_config=STEP_COLUMNS)
+if no_drag:
+    st.caption("Drag and drag power are not computed here"
+               + (" (several fish swam together in this chamber)." if "n_fish" in own and (own["n_fish"] > 1).any()
+                  else "."))
 
 # --- figures --------------------------------------------------------------------------------
 fits = analysis.fits.get(fish_id) if isinstance(analysis.fits, dict) else None

@@ -439,8 +439,9 @@ def figure_payload_bytes(fig: go.Figure) -> int:
 # Protocols beyond the step test (each figure's title names its protocol)
 # --------------------------------------------------------------------------------------------
 
-PROTOCOL_COLOURS = ["#1f5fa8", "#c0392b", "#1e8449", "#7d3c98", "#b9770e", "#117a65"]
-"""Colours of the speeds or fish in the protocol figures (our own choice)."""
+PROTOCOL_COLOURS = ["#1f5fa8", "#c0392b", "#1e8449", "#7d3c98", "#b9770e", "#566573", "#c2185b", "#212121"]
+"""Colours of the speeds or fish in the protocol figures (our own choice: eight hues far apart, so
+that neighbouring speeds never share a colour family; beyond eight, lines are also dashed)."""
 
 
 def _own(table: pd.DataFrame | None, fish_id: str) -> pd.DataFrame:
@@ -517,12 +518,13 @@ def kaplan_meier_figure(summary: Any) -> go.Figure | None:
     limit_min = summary.time_limit_s / 60.0
     for i, (speed, part) in enumerate(summary.kaplan_meier.groupby("set_speed_cm_s", sort=True)):
         colour = PROTOCOL_COLOURS[i % len(PROTOCOL_COLOURS)]
+        dash = ("solid", "dash", "dot")[(i // len(PROTOCOL_COLOURS)) % 3]
         x = np.r_[0.0, part["time_min"].to_numpy(dtype=float)]
         y = np.r_[1.0, part["share_swimming"].to_numpy(dtype=float)]
         if x[-1] < limit_min:
             x, y = np.r_[x, limit_min], np.r_[y, y[-1]]
         fig.add_trace(go.Scatter(x=x, y=y, mode="lines", line_shape="hv", name=f"{speed:g} cm/s (set)",
-                                 line={"color": colour, "width": 2}, legendgroup=str(speed)))
+                                 line={"color": colour, "width": 2, "dash": dash}, legendgroup=str(speed)))
         cens = part[part["censored"] > 0]
         if len(cens):
             fig.add_trace(go.Scatter(x=cens["time_min"], y=cens["share_swimming"], mode="markers", showlegend=False,

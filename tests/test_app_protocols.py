@@ -116,6 +116,10 @@ def test_group_trial_results_page_warns(lab):
     assert not at.exception, at.exception
     assert "Schooling changes the cost of swimming" in _texts(at.warning)
     assert at.metric[0].label == "Ucrit"
+    # the step table: no drag columns of None for a group, and a caption saying why
+    steps = next(d.value for d in at.dataframe if "mo2_per_fish_mg_h" in d.value)
+    assert "drag_mn" not in steps and not steps.isna().all().any()
+    assert "not computed here (several fish swam together" in _texts(at.caption)
 
 
 def test_repeat_swim_is_analysed_with_its_first_swim(lab):

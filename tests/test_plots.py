@@ -214,3 +214,15 @@ def test_cot_figure_without_uopt_has_no_marker():
 def test_calibration_figure_plots_the_points():
     fig = plots.calibration_figure([{"motor_setting": 10, "speed_cm_s": 12.0}, {"motor_setting": 20, "speed_cm_s": 25.0}])
     assert list(fig.data[0].x) == [10, 20] and list(fig.data[0].y) == [12.0, 25.0]
+
+
+def test_kaplan_meier_speeds_never_share_a_line_style():
+    # Each set speed's step line differs from every other in colour or dash (twelve speeds).
+    from types import SimpleNamespace
+
+    rows = [{"set_speed_cm_s": 20.0 + 5 * k, "time_min": t, "share_swimming": s, "censored": 0}
+            for k in range(12) for t, s in ((10.0, 0.5), (20.0, 0.0))]
+    summary = SimpleNamespace(kaplan_meier=pd.DataFrame(rows), time_limit_s=3600.0)
+    fig = plots.kaplan_meier_figure(summary)
+    styles = [(tr.line.color, tr.line.dash) for tr in fig.data if tr.mode == "lines"]
+    assert len(styles) == 12 and len(set(styles)) == 12
