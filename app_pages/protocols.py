@@ -228,7 +228,7 @@ for part in pr.parts:
     if rows.empty:
         continue
     st.subheader(PART_LABELS[part])
-    st.dataframe(ui_forms.results_display(rows), hide_index=True, width="stretch")
+    st.dataframe(ui_forms.results_display(rows), hide_index=True, placeholder="—", width="stretch")
     if part == "repeat" and str(fish_id) in pr.repeat and pr.repeat[str(fish_id)].ci_low is not None:
         rr_shown = pr.repeat[str(fish_id)]
         calib = ("one speed calibration shared by both swims, which cancels in the ratio"
@@ -245,7 +245,7 @@ for part in pr.parts:
     table = pr.tables.get(TABLES.get(part, ""))
     if table is not None and not table.empty:
         with st.expander(f"{PART_LABELS[part]}: table"):
-            st.dataframe(table[table["fish_id"].astype(str) == str(fish_id)], hide_index=True, width="stretch")
+            st.dataframe(table[table["fish_id"].astype(str) == str(fish_id)], hide_index=True, placeholder="—", width="stretch")
 for problem in pr.problems:
     if not problem.fish_id or str(problem.fish_id) == str(fish_id):
         st.error(f"Not computed — {problem}")
@@ -300,7 +300,7 @@ if session.protocol.type == "endurance":
             st.caption("Each gait the trials ended in (the last gait change with a gait, at or before fatigue or the "
                        "limit) gets its own censored fatigue curve when it has enough trials: steady and burst-assisted "
                        "swimming are separate domains (Brett 1964; Beamish 1978).")
-            st.dataframe(gait_curve_table(summary), hide_index=True, width="stretch", column_config={
+            st.dataframe(gait_curve_table(summary), hide_index=True, placeholder="—", width="stretch", column_config={
                 "label": st.column_config.TextColumn("Gait at the end"),
                 "n_fish": st.column_config.NumberColumn("Fish [-]", format="%d"),
                 "n_fatigued": st.column_config.NumberColumn("Fatigued [-]", format="%d"),
@@ -315,14 +315,14 @@ if session.protocol.type == "endurance":
             for line in gait_curve_sentences(summary):
                 st.markdown(f"- {line}.")
         with st.expander("Endurance: every fish"):
-            st.dataframe(fish, hide_index=True, width="stretch")
+            st.dataframe(fish, hide_index=True, placeholder="—", width="stretch")
 
 if session.protocol.type in ("repeat_ucrit", "step_ucrit"):
     paired = repeat_pairs(_same_study(("repeat_ucrit", "step_ucrit"))) if session.protocol.type == "repeat_ucrit" else None
     if paired is not None and not paired.pairs.empty:
         st.header("Repeat swims across fish")
-        st.dataframe(paired.pairs, hide_index=True, width="stretch")
-        st.dataframe(paired.groups, hide_index=True, width="stretch")
+        st.dataframe(paired.pairs, hide_index=True, placeholder="—", width="stretch")
+        st.dataframe(paired.groups, hide_index=True, placeholder="—", width="stretch")
         if paired.comparison:
             c = paired.comparison
             st.markdown(f"Mean recovery ratio, {c['groups'][0]} − {c['groups'][1]}: **{c['difference']:.3f}** "

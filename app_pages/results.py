@@ -53,7 +53,7 @@ else:
         interval = f"95 % interval {shown['95 % interval']}. " if shown["95 % interval"] else ""
         col.metric(shown["Quantity"], shown["Value"] or "–", help=f"{interval}{row['method']}.")
         col.caption(shown["Unit"])
-    st.dataframe(ui_forms.results_display(mine), hide_index=True, width="stretch")
+    st.dataframe(ui_forms.results_display(mine), hide_index=True, placeholder="—", width="stretch")
 
 # --- protocol results (ramp, endurance, repeat swim, recovery, gait, kinematics) -------------
 protocol = getattr(analysis, "protocol", None)
@@ -67,11 +67,11 @@ if protocol is not None:
         if rows.empty:
             continue
         st.subheader(PART_LABELS.get(part, part))
-        st.dataframe(ui_forms.results_display(rows), hide_index=True, width="stretch")
+        st.dataframe(ui_forms.results_display(rows), hide_index=True, placeholder="—", width="stretch")
     for name, table in (protocol.tables or {}).items():
         if table is not None and not table.empty:
             with st.expander(f"Table: {name.replace('_', ' ')}"):
-                st.dataframe(table, hide_index=True, width="stretch")
+                st.dataframe(table, hide_index=True, placeholder="—", width="stretch")
     for problem in protocol.problems:
         if not problem.fish_id or str(problem.fish_id) == str(fish_id):
             st.info(f"Not computed ({PART_LABELS.get(problem.part, problem.part)}): {problem.message}"
@@ -108,10 +108,10 @@ drag_cols = [c for c in ("drag_mn", "drag_power_mw") if c in shown]
 no_drag = bool(drag_cols) and not shown.empty and shown[drag_cols].isna().all().all()
 if no_drag:
     shown = shown.drop(columns=drag_cols)
-for col in shown.columns:  # numbers missing as None show as blank cells, not the word None
+for col in shown.columns:  # numbers missing as None: a numeric column (shown as "—")
     if col != "flow_regime" and shown[col].dtype == object:
         shown[col] = pd.to_numeric(shown[col], errors="coerce")
-st.dataframe(shown, hide_index=True, width="stretch", column_config=STEP_COLUMNS)
+st.dataframe(shown, hide_index=True, placeholder="—", width="stretch", column_config=STEP_COLUMNS)
 if no_drag:
     st.caption("Drag and drag power are not computed here"
                + (" (several fish swam together in this chamber)." if "n_fish" in own and (own["n_fish"] > 1).any()

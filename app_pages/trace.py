@@ -207,7 +207,7 @@ if measure is None or measure.empty:
 st.subheader("Measure phases")
 show = [c for c in common.MEASURE_COLUMNS if c in measure]
 st.dataframe(
-    measure[show].rename(columns=common.MEASURE_COLUMNS), hide_index=True, width="stretch", height=260,
+    measure[show].rename(columns=common.MEASURE_COLUMNS), hide_index=True, placeholder="—", width="stretch", height=260,
     column_config={
         "Start [s]": st.column_config.NumberColumn(format="%.0f"),
         "End [s]": st.column_config.NumberColumn(format="%.0f"),
