@@ -2,15 +2,14 @@
 
 from __future__ import annotations
 
-import hashlib
-
-import numpy as np
 import pandas as pd
 import streamlit as st
 
 from app_pages import common
 from swimlab import plots, ui_forms
+from swimlab.constants import SECONDS_PER_HOUR
 from swimlab.errors import InputError
+from swimlab.io.checksum import sha256_hex
 
 common.page_header(
     "Oxygen trace",
@@ -62,7 +61,7 @@ if attached:
                 "Upload another file below to replace it; a stored file is never changed.")
 pending = st.session_state.get("tr_upload")
 attached_shas = {ref.get("sha256") for ref in attached}
-fresh = pending is not None and hashlib.sha256(pending.getvalue()).hexdigest() not in attached_shas
+fresh = pending is not None and sha256_hex(pending.getvalue()) not in attached_shas
 importer = st.expander("Import a logger file" if not attached else "Replace the logger file or change its mapping",
                        expanded=not attached or fresh)
 with importer:
@@ -70,7 +69,7 @@ with importer:
 if upload is not None:
     with importer:
         raw = upload.getvalue()
-        sha = hashlib.sha256(raw).hexdigest()
+        sha = sha256_hex(raw)
         try:
             with st.spinner("Reading the file's layout…"):
                 sniffed, guessed, fingerprint = _sniff(raw, upload.name)
@@ -129,7 +128,8 @@ if upload is not None:
                 logged = None
                 st.error(f"The file {upload.name!r} could not be read with this mapping: {exc}")
             if logged is not None:
-                duration_h = (float(np.nanmax(logged.time_s)) - float(np.nanmin(logged.time_s))) / 3600.0 if len(logged.time_s) else 0.0
+                # time_s starts at 0 and increases (a trace holds at least two readings)
+                duration_h = float(logged.time_s[-1]) / SECONDS_PER_HOUR
                 st.markdown(
                     f"{len(logged.time_s):,} readings over {duration_h:.2f} h; oxygen channels "
                     f"{', '.join(sorted(logged.oxygen))} in {logged.oxygen_unit}; "

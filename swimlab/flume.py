@@ -216,7 +216,7 @@ def solid_blocking(
     depth = _validate.positive("body_depth", body_depth, "m")
     width = _validate.positive("body_width", body_width, "m")
     a_t = _validate.positive("section_area", section_area, "m²")
-    ratio = _ratio(np.pi / 4.0 * depth * width, a_t)
+    ratio = _ratio(np.asarray(frontal_area(depth, width), dtype=float), a_t)
     t = _thickness(depth, width, thickness)
     shape = BELL_TERHUNE1970_LAMBDA_SCALE * length / t
     eps = BELL_TERHUNE1970_TAU * shape * ratio**BELL_TERHUNE1970_EXPONENT

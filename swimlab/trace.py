@@ -171,9 +171,15 @@ def _table_from_labels(time_s: np.ndarray, label: np.ndarray, cycle: np.ndarray,
     change = np.flatnonzero((label[1:] != label[:-1]) | (cycle[1:] != cycle[:-1])) + 1
     starts = np.concatenate(([0], change))
     stops = np.concatenate((change, [n]))
+    return _phase_frame(time_s, cycle[starts], label[starts], starts, stops, method)
+
+
+def _phase_frame(time_s: np.ndarray, cycle: np.ndarray, label: np.ndarray, starts: np.ndarray,
+                 stops: np.ndarray, method: str) -> pd.DataFrame:
+    """The phase table of runs of readings [starts, stops) with their cycle and label codes."""
     return pd.DataFrame({
-        "cycle": cycle[starts].astype(np.int64),
-        "phase": _NAMES[label[starts]],
+        "cycle": cycle.astype(np.int64),
+        "phase": _NAMES[label],
         "start_s": time_s[starts],
         "end_s": time_s[stops - 1],
         "i_start": starts.astype(np.int64),
@@ -199,16 +205,7 @@ def _table_from_flush(time_s: np.ndarray, flush: np.ndarray, wait_s: float, meth
     row_label = np.stack((first_label, np.full(starts.size, _MEASURE)), axis=1).ravel()
     row_cycle = np.repeat(cycle, 2)
     keep = row_stop > row_start
-    row_start, row_stop = row_start[keep], row_stop[keep]
-    return pd.DataFrame({
-        "cycle": row_cycle[keep].astype(np.int64),
-        "phase": _NAMES[row_label[keep]],
-        "start_s": time_s[row_start],
-        "end_s": time_s[row_stop - 1],
-        "i_start": row_start.astype(np.int64),
-        "i_stop": row_stop.astype(np.int64),
-        "method": method,
-    }, columns=PHASE_COLUMNS)
+    return _phase_frame(time_s, row_cycle[keep], row_label[keep], row_start[keep], row_stop[keep], method)
 
 
 def phases_from_pump(time_s: Any, pump: Any, wait_s: float) -> pd.DataFrame:

@@ -20,7 +20,6 @@ from __future__ import annotations
 import codecs
 import csv
 import functools
-import hashlib
 import json
 import math
 import re
@@ -183,7 +182,7 @@ def header_fingerprint(columns: list[str]) -> str:
         ``"cols1:"`` followed by 20 hex digits of a SHA-256 over the normalised names.
     """
     names = [_normalise_name(str(c)) for c in columns]
-    digest = hashlib.sha256("\x1f".join([str(len(names)), *names]).encode("utf-8")).hexdigest()
+    digest = sha256_hex("\x1f".join([str(len(names)), *names]).encode("utf-8"))
     return f"cols1:{digest[:20]}"
 
 
