@@ -14,6 +14,7 @@ import streamlit as st
 
 from app_pages import common
 from swimlab import plots, ui_forms
+from swimlab.constants import CM_PER_M
 from swimlab.protocol_analysis import (
     PART_LABELS,
     endurance_summary,
@@ -280,11 +281,11 @@ if session.protocol.type == "endurance":
                     f"{summary.time_limit_s / 60:g} min limit (censored).")
         cols = st.columns(2)
         mss = summary.max_sustained.speed_m_s
-        cols[0].metric("Endurance: maximum sustained speed (set)", "–" if mss is None else f"{mss * 100:.1f} cm/s",
+        cols[0].metric("Endurance: maximum sustained speed (set)", "–" if mss is None else f"{mss * CM_PER_M:.1f} cm/s",
                        help="Highest set speed at which no fish fatigued within the limit.")
         half = summary.half_fatigued
         cols[1].metric("Endurance: speed at which half fatigue", "–" if half is None or half.speed_m_s is None
-                       else f"{half.speed_m_s * 100:.1f} cm/s",
+                       else f"{half.speed_m_s * CM_PER_M:.1f} cm/s",
                        help="From the censored fatigue curve (Tobin 1958).")
         left, right = st.columns(2)
         with left:
