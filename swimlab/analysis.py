@@ -266,6 +266,7 @@ def _fish_geometry(session, settings, flags):
         group = session.group_of(fish.fish_id)
         length, depth, width = fish.total_length_cm * CM, fish.body_depth_cm * CM, fish.body_width_cm * CM
         frontal = float(flume.frontal_area(depth, width))
+        volume_fish_l = fish.mass_g * G / settings.fish_density_kg_m3 * 1000.0
         row = {
             "fish_id": fish.fish_id,
             "chamber": fish.chamber,
@@ -279,8 +280,7 @@ def _fish_geometry(session, settings, flags):
             "blocking_ratio": np.nan,
             "blocking_epsilon": np.nan,
             "blocking_within_limit": False,
-            "volume_ratio": (session.flume.respirometer_volume_l - fish.mass_g * G / settings.fish_density_kg_m3 * 1000.0)
-            / (fish.mass_g * G / settings.fish_density_kg_m3 * 1000.0),
+            "volume_ratio": (session.flume.respirometer_volume_l - volume_fish_l) / volume_fish_l,
             "wetted_area_cm2": float(hydrodynamics.wetted_area(length, depth, width)) / CM**2,
             "group_id": "" if group is None else group.group_id,
         }
@@ -463,10 +463,8 @@ def _uptake(session: Session, settings: LabSettings, logged, flags: list[dict]):
         exclusions=exclusions,
         settings=settings,
     )
-    # a group's volume-ratio flag is raised once, by _groups, with the group named
-    grouped = {u.chamber for u in units.values() if u.is_group}
-    flags.extend(f for f in uptake_flags
-                 if not (f["code"] == "VOLUME_RATIO_OUTSIDE_GUIDANCE" and f.get("channel") in grouped))
+    # the volume-ratio flag is raised once per fish or group, by _fish_geometry and _groups, with it named
+    flags.extend(f for f in uptake_flags if f["code"] != "VOLUME_RATIO_OUTSIDE_GUIDANCE")
     if not measure.empty:
         n_fish = measure["channel"].astype(str).map({ch: u.n_fish for ch, u in units.items()}).fillna(1).astype(int)
         measure = measure.assign(n_fish=n_fish.to_numpy(),

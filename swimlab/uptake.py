@@ -387,8 +387,7 @@ def phase_uptake(
     error carried through the linear formula; the blanks' uncertainty is not included.
     ``used`` = accepted and not excluded and MO2 > 0. BACKGROUND_HIGH is raised for used
     phases only (a phase whose background exceeds its decline gets MO2_NOT_POSITIVE). The volume
-    ratio is
-    V_resp / V_fish, checked against ``volume_ratio_min`` … ``volume_ratio_max`` (common
+    ratio is (V_resp − V_fish) / V_fish (``volume_ratio`` in docs/nomenclature.md), checked against ``volume_ratio_min`` … ``volume_ratio_max`` (common
     practice; Svendsen et al. 2016 discuss the choice).
     """
     _validate.choice("background method", background_method, BACKGROUND_METHODS)
@@ -427,7 +426,8 @@ def phase_uptake(
             raise InputError(f"the fish in channel {channel!r} ({mass_g:g} g, {v_fish_l:g} L) does not "
                              f"fit the {volume_l:g} L respirometer",
                              field=f"chambers.{channel}.respirometer_volume_l")
-        ratio = volume_l / v_fish_l
+        water_l = volume_l - v_fish_l
+        ratio = water_l / v_fish_l
         if not settings.volume_ratio_min <= ratio <= settings.volume_ratio_max:
             flags.append(checks.flag(
                 "VOLUME_RATIO_OUTSIDE_GUIDANCE",
@@ -447,7 +447,6 @@ def phase_uptake(
         value = np.full(rows.sum(), np.nan)
         if ok.any():
             value[ok] = mo2(slope[rows][ok], bg[ok], volume_l / LITRES_PER_M3, mass_kg, density)
-        water_l = volume_l - v_fish_l
         cols["respirometer_volume_l"][rows] = volume_l
         cols["fish_mass_g"][rows] = mass_g
         cols["background_slope_mg_l_s"][rows] = bg

@@ -109,9 +109,10 @@ def test_uopt_is_the_minimum_of_gross_cost_of_transport(analysis):
     found = minimize_scalar(lambda u: float(best.predict(u)) / u, bounds=(0.05, 3.0), method="bounded",
                             options={"xatol": 1e-7})
     assert analysis.result("F1", "uopt") == pytest.approx(found.x * 100.0, rel=1e-4)
-    if fits.best == "exponential":
-        # For MO2 = a·e^(bU), COT ∝ e^(bU)/U is smallest at U = 1/b.
-        assert analysis.result("F1", "uopt") == pytest.approx(100.0 / best.params["b"], rel=1e-9)
+    # The simulated curve is exponential and the fit chooses it; for MO2 = a·e^(bU),
+    # COT ∝ e^(bU)/U is smallest at U = 1/b.
+    assert fits.best == "exponential"
+    assert analysis.result("F1", "uopt") == pytest.approx(100.0 / best.params["b"], rel=1e-9)
 
 
 def test_cost_of_transport_is_mo2_over_speed(analysis):
@@ -130,6 +131,19 @@ def test_analysis_is_deterministic_and_json_safe(simulated, analysis):
 def test_no_flags_on_a_clean_simulated_trial(analysis):
     serious = analysis.flags[analysis.flags["severity"].isin(["invalid", "warning"])]
     assert serious.empty, serious[["code", "where", "message"]].to_string()
+
+
+def test_volume_ratio_flag_once_per_fish_with_the_fish_volume_taken_out(simulated):
+    # A 4 kg fish (4 L at 1000 kg/m³) in 60 L: (60 − 4) / 4 = 14 (docs/nomenclature.md), worked by
+    # hand, below the guidance of 20 (common practice); one flag, naming the fish.
+    trial, _, raw = simulated
+    sha = next(iter(raw))
+    session = Session.from_json_dict(_session_dict(sha, blanks=[], mass_g=4000.0))
+    result = analyse(session, raw, n_boot=0)
+    assert result.fish.set_index("fish_id").loc["F1", "volume_ratio"] == pytest.approx(14.0, rel=1e-12)
+    ratio = result.flags[result.flags["code"] == "VOLUME_RATIO_OUTSIDE_GUIDANCE"]
+    assert len(ratio) == 1
+    assert ratio["where"].iloc[0] == "fish F1" and "ratio 14 " in ratio["message"].iloc[0]
 
 
 def test_session_without_trace_still_gives_geometry(simulated):

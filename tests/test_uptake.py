@@ -214,6 +214,18 @@ def test_phase_uptake_flags():
     assert "fish turned around" in excluded["message"]
 
 
+def test_phase_uptake_volume_ratio_is_water_over_fish_volume():
+    # The ratio of docs/nomenclature.md, (V_resp − V_fish) / V_fish; its guidance 20–500 is common
+    # practice. By hand: 20.5 L with a 1 kg fish (1 L at 1000 kg/m³) -> 19.5 L / 1 L = 19.5 < 20,
+    # flagged (V_resp / V_fish would be 20.5 and pass); 22 L -> 21, inside.
+    table = _slopes_table([-0.001])
+    _, flags = uptake.phase_uptake(table, chambers={"A": {"respirometer_volume_l": 20.5, "fish_mass_g": 1000.0}})
+    ratio = [f for f in flags if f["code"] == "VOLUME_RATIO_OUTSIDE_GUIDANCE"]
+    assert len(ratio) == 1 and "ratio 20 " in ratio[0]["message"]  # 19.5 shown to no decimals
+    _, flags = uptake.phase_uptake(table, chambers={"A": {"respirometer_volume_l": 22.0, "fish_mass_g": 1000.0}})
+    assert "VOLUME_RATIO_OUTSIDE_GUIDANCE" not in {f["code"] for f in flags}
+
+
 def test_phase_uptake_refuses_bad_set_up():
     table = _slopes_table([-0.001])
     with pytest.raises(InputError, match="no chamber set-up") as info:
