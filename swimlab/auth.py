@@ -55,21 +55,38 @@ MODES = (SINGLE_USER, LAB_SERVER)
 
 ENV_MODE = "SWIMLAB_MODE"
 SETTINGS_FILE_LOCAL = "swimlab.toml"
+SETTINGS_FILE_USER = Path("~/.config/swimlab/settings.toml")
 
 
-def _file_value(path: Path, key: str) -> str | None:
+def settings_files(
+    cwd: str | os.PathLike | None = None, home: str | os.PathLike | None = None
+) -> tuple[Path, Path]:
+    """The settings files, nearest first: ``swimlab.toml`` in ``cwd`` (default: the working
+    folder), then ``~/.config/swimlab/settings.toml`` under ``home`` (default: the user's)."""
+    where = Path(cwd) if cwd is not None else Path.cwd()
+    user_file = (
+        Path(home) / SETTINGS_FILE_USER.relative_to("~")
+        if home is not None
+        else SETTINGS_FILE_USER.expanduser()
+    )
+    return where / SETTINGS_FILE_LOCAL, user_file
+
+
+def settings_file_value(path: Path, key: str) -> Any:
+    """The value of ``key`` in the TOML settings file ``path``; ``None`` without file or key.
+
+    Raises
+    ------
+    InputError
+        If the file is not valid TOML (naming the file).
+    """
     try:
         data = tomllib.loads(path.read_text(encoding="utf-8"))
     except FileNotFoundError:
         return None
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
         raise InputError(f"is not valid TOML: {exc}", file=str(path)) from exc
-    value = data.get(key)
-    if value is None:
-        return None
-    if not isinstance(value, str):
-        raise InputError(f"must be text; got {value!r}", file=str(path), field=key)
-    return value
+    return data.get(key)
 
 
 def check_mode(value: Any, *, file: str | None = None) -> str:
@@ -108,12 +125,10 @@ def resolve_mode(
         return check_mode(mode), "argument"
     if environ.get(ENV_MODE, "").strip():
         return check_mode(environ[ENV_MODE]), "environment"
-    where = Path(cwd) if cwd is not None else Path.cwd()
-    user_file = (
-        Path(home) if home is not None else Path("~").expanduser()
-    ) / ".config" / "swimlab" / "settings.toml"
-    for candidate in (where / SETTINGS_FILE_LOCAL, user_file):
-        found = _file_value(candidate, "mode")
+    for candidate in settings_files(cwd, home):
+        found = settings_file_value(candidate, "mode")
+        if found is not None and not isinstance(found, str):
+            raise InputError(f"must be text; got {found!r}", file=str(candidate), field="mode")
         if found is not None and found.strip():
             return check_mode(found, file=str(candidate)), str(candidate)
     return SINGLE_USER, "default"

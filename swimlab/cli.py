@@ -260,11 +260,11 @@ def _analyse(args: argparse.Namespace) -> int:
     groups = getattr(result, "groups", None)
     if groups is not None and not groups.empty:
         files["groups.csv"] = groups.to_csv(index=False).encode("utf-8")
-    from swimlab.io.bundle import _atomic_write_bytes
+    from swimlab.io.bundle import atomic_write_bytes
 
     out.mkdir(parents=True, exist_ok=True)
     for name, data in files.items():
-        _atomic_write_bytes(out / name, data)
+        atomic_write_bytes(out / name, data)
     flags = result.flags
     counts = ""
     if len(flags) and "severity" in flags:
@@ -411,10 +411,10 @@ def _fatigue_curves(args: argparse.Namespace) -> int:
     if args.out:
         out = Path(args.out)
         out.mkdir(parents=True, exist_ok=True)
-        from swimlab.io.bundle import _atomic_write_bytes
+        from swimlab.io.bundle import atomic_write_bytes
 
-        _atomic_write_bytes(out / "endurance_fish.csv", fish.to_csv(index=False).encode("utf-8"))
-        _atomic_write_bytes(out / "fatigue_curves_by_gait.csv",
+        atomic_write_bytes(out / "endurance_fish.csv", fish.to_csv(index=False).encode("utf-8"))
+        atomic_write_bytes(out / "fatigue_curves_by_gait.csv",
                             gait_curve_table(summary).to_csv(index=False).encode("utf-8"))
         print(f"wrote endurance_fish.csv, fatigue_curves_by_gait.csv to {out}")
     return EXIT_OK

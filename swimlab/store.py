@@ -51,7 +51,6 @@ from __future__ import annotations
 import datetime as dt
 import json
 import os
-import tomllib
 from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass, replace
 from pathlib import Path
@@ -65,15 +64,13 @@ from sqlalchemy.exc import ArgumentError, DBAPIError, NoSuchModuleError
 from swimlab import auth
 from swimlab.errors import ConflictError, InputError, PermissionDeniedError
 from swimlab.io.checksum import sha256_hex
-from swimlab.session import STATUSES, Session, validate_session
+from swimlab.session import STATUSES, Session
 from swimlab.settings import LabSettings
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
 ENV_URL = "SWIMLAB_DATABASE_URL"
-SETTINGS_FILE_LOCAL = "swimlab.toml"
-SETTINGS_FILE_USER = Path("~/.config/swimlab/settings.toml")
 DEFAULT_SQLITE_PATH = Path("labbook") / "swimlab.sqlite"
 BUSY_TIMEOUT_S = 15.0
 """How long a SQLite writer waits for another writer to finish before giving up. [s]"""
@@ -215,13 +212,7 @@ def diff_documents(old: Any, new: Any) -> list[dict[str, Any]]:
 
 
 def _settings_file_url(path: Path) -> str | None:
-    try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        return None
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise InputError(f"is not valid TOML: {exc}", file=str(path)) from exc
-    value = data.get("database_url")
+    value = auth.settings_file_value(path, "database_url")
     if value is None:
         return None
     if not isinstance(value, str) or not value.strip():
@@ -247,20 +238,15 @@ def resolve_database_url(
         settings file's path, or ``"default"`` (SQLite at ``./labbook/swimlab.sqlite``).
     """
     environ = os.environ if environ is None else environ
-    where = Path(cwd) if cwd is not None else Path.cwd()
     if url is not None and str(url).strip():
         return str(url).strip(), "argument"
     if environ.get(ENV_URL, "").strip():
         return environ[ENV_URL].strip(), "environment"
-    user_file = (
-        Path(home) / ".config" / "swimlab" / "settings.toml"
-        if home is not None
-        else SETTINGS_FILE_USER.expanduser()
-    )
-    for candidate in (where / SETTINGS_FILE_LOCAL, user_file):
+    for candidate in auth.settings_files(cwd, home):
         found = _settings_file_url(candidate)
         if found:
             return found, str(candidate)
+    where = Path(cwd) if cwd is not None else Path.cwd()
     return f"sqlite:///{(where / DEFAULT_SQLITE_PATH).resolve()}", "default"
 
 
@@ -610,12 +596,7 @@ def _checked_document(session: Session) -> dict[str, Any]:
     if not isinstance(session, Session):
         raise InputError(f"must be a Session; got {type(session).__name__}", field="session")
     document = session.to_json_dict()
-    checked, problems = validate_session(document)
-    if checked is None:
-        raise InputError(
-            "the session is not valid: " + "; ".join(str(p) for p in problems),
-            field=problems[0].field if problems else None,
-        )
+    Session.from_json_dict(document)  # raises InputError listing every problem
     return document
 
 
@@ -1965,9 +1946,12 @@ class LabBook:
 
     def set_email(self, username: str, email: str, *, who: str, reason: str = "") -> Account:
         """Change the e-mail address matched against single sign-on (``""`` for none)."""
+        return self._set_email(username, email, actor=_Actor.given(who), reason=reason)
+
+    def _set_email(self, username: str, email: str, *, actor: _Actor, reason: str) -> Account:
         return self._update_person(
             username,
-            actor=_Actor.given(who),
+            actor=actor,
             action="e-mail changed",
             values={"email": _email(email)},
             reason=_text(reason, "reason", required=False),
@@ -2491,13 +2475,7 @@ class ActingLabBook:
 
     def set_email(self, username: str, email: str, *, reason: str = "") -> Account:
         """As :meth:`LabBook.set_email`: admins only."""
-        return self._book._update_person(
-            username,
-            actor=self._actor(),
-            action="e-mail changed",
-            values={"email": _email(email)},
-            reason=_text(reason, "reason", required=False),
-        )
+        return self._book._set_email(username, email, actor=self._actor(), reason=reason)
 
     def list_people(self) -> pd.DataFrame:
         """As :meth:`LabBook.list_people`: admins only (it shows e-mails and login times)."""
@@ -2527,8 +2505,7 @@ class ActingLabBook:
         self.check(auth.CHANGE_OWN_PASSWORD)
         self._book.login(person.username, current)
         auth.check_new_password(new, username=person.username, field="new_password")
-        actor = _Actor(person.username, via=person.via, person=person)
-        # One's own password: the people-management check does not apply.
+        # One's own password: no person to check, so the people-management check does not apply.
         return self._book._set_password(
-            person.username, new, actor=replace(actor, person=None, via=person.via), reason="own"
+            person.username, new, actor=_Actor(person.username, via=person.via), reason="own"
         )

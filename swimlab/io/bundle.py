@@ -218,7 +218,7 @@ def schema_text(schema: Mapping[str, Any] | None = None) -> str:
 def write_schema(path: str | os.PathLike | None = None) -> Path:
     """Write the generated schema to ``path`` (default: the committed file). Returns the path."""
     target = Path(path) if path is not None else schema_path()
-    _atomic_write_bytes(target, schema_text().encode("utf-8"))
+    atomic_write_bytes(target, schema_text().encode("utf-8"))
     return target
 
 
@@ -420,12 +420,7 @@ def bundle_files(
         does not refer to.
     """
     document = session.to_json_dict()
-    checked, problems = validate_session(document)
-    if checked is None:
-        raise InputError(
-            "the session is not valid: " + "; ".join(str(p) for p in problems),
-            field=problems[0].field if problems else None,
-        )
+    Session.from_json_dict(document)  # raises InputError listing every problem
     refs = {ref.sha256 for ref in session.raw_files}
     for sha, data in raw_files.items():
         if sha not in refs:
@@ -553,7 +548,9 @@ def _write_file(path: Path, data: bytes) -> None:
         os.fsync(handle.fileno())
 
 
-def _atomic_write_bytes(target: Path, data: bytes) -> None:
+def atomic_write_bytes(target: Path, data: bytes) -> None:
+    """Write ``data`` to ``target`` whole or not at all: a synced temporary file beside it,
+    renamed into place; an existing ``target`` is replaced only when the new bytes are on disk."""
     temp = target.parent / f".{target.name}.partial-{uuid.uuid4().hex[:8]}"
     try:
         _write_file(temp, data)
