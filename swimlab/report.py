@@ -35,7 +35,6 @@ import numbers
 import os
 import re
 import shutil
-import tempfile
 import threading
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
@@ -47,6 +46,7 @@ import pandas as pd
 from markupsafe import Markup
 
 from swimlab import __version__, checks
+from swimlab.constants import PA_PER_KPA
 from swimlab.errors import InputError
 from swimlab.session import PROTOCOL_LABELS, Session
 
@@ -537,22 +537,20 @@ class _Facts:
         return low, self.percent_from_mg_l(low)
 
     def mg_l_from_percent(self, pct: float) -> float | None:
-        from swimlab import oxygen
-
-        w = self.session.water
-        try:
-            return float(oxygen.convert(pct, "% air saturation", "mg/L", w.temperature_c, w.salinity,
-                                        w.barometric_pressure_kpa * 1000.0))
-        except (InputError, ValueError):
-            return None
+        return self._oxygen(pct, "% air saturation", "mg/L")
 
     def percent_from_mg_l(self, mg_l: float) -> float | None:
+        return self._oxygen(mg_l, "mg/L", "% air saturation")
+
+    def _oxygen(self, value: float, source: str, target: str) -> float | None:
+        """``value`` of oxygen in unit ``source`` converted to ``target`` in the session's water,
+        or ``None`` when the water's record does not allow it."""
         from swimlab import oxygen
 
         w = self.session.water
         try:
-            return float(oxygen.convert(mg_l, "mg/L", "% air saturation", w.temperature_c, w.salinity,
-                                        w.barometric_pressure_kpa * 1000.0))
+            return float(oxygen.convert(value, source, target, w.temperature_c, w.salinity,
+                                        w.barometric_pressure_kpa * PA_PER_KPA))
         except (InputError, ValueError):
             return None
 
@@ -2948,16 +2946,8 @@ def write_tables(report: Report, folder: str | os.PathLike) -> list[Path]:
 
 
 def _atomic_write(target: Path, data: bytes) -> Path:
+    from swimlab.io.bundle import atomic_write_bytes
+
     target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=str(target.parent))
-    try:
-        with os.fdopen(fd, "wb") as handle:
-            handle.write(data)
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.replace(tmp, target)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    atomic_write_bytes(target, data)
     return target
