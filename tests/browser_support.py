@@ -6,6 +6,7 @@ Logger files are made by :mod:`swimlab.sim` (its truth is known to the simulator
 
 from __future__ import annotations
 
+import hashlib
 import os
 import socket
 import subprocess
@@ -17,6 +18,8 @@ from typing import Any
 
 ROOT = Path(__file__).resolve().parents[1]
 CHROMIUM = "/usr/bin/chromium"
+APP_TIMEOUT_S = 90
+"""How long one AppTest run of the app may take. [s]"""
 CHROMIUM_ARGS = [
     "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
     "--disable-background-networking", "--disable-component-update", "--disable-sync",
@@ -78,6 +81,57 @@ def logger_file(session: dict[str, Any], *, seed: int = 7) -> tuple[str, bytes]:
         pressure_pa=session["water"].get("barometric_pressure_kpa", 101.325) * 1000.0,
     )
     return "kb03_trace.csv", trial.csv_bytes
+
+
+def attach_logger_file(session: dict[str, Any], *, seed: int = 7) -> tuple[str, bytes]:
+    """Simulate ``session``'s logger file (:func:`logger_file`) and list it in ``session`` as its
+    trial file, with the column mapping guessed from its header; return its (SHA-256, bytes)."""
+    from swimlab.io import logger
+
+    name, raw = logger_file(session, seed=seed)
+    sha = hashlib.sha256(raw).hexdigest()
+    session["raw_files"] = [{"sha256": sha, "name": name, "role": "trial",
+                             "mapping": logger.guess_mapping(raw, name=name).to_dict()}]
+    return sha, raw
+
+
+def require_chromium() -> None:
+    """Skip the calling test when Debian's Chromium is absent; fail instead when CI is "true"."""
+    import pytest
+
+    if Path(CHROMIUM).exists():
+        return
+    reason = f"{CHROMIUM} is not installed (Debian package 'chromium'); the browser test needs it"
+    if os.environ.get("CI") == "true":
+        pytest.fail(reason)
+    pytest.skip(reason)
+
+
+def app_lab_book_url(tmp_path: Path, monkeypatch) -> str:
+    """Point the app at a fresh SQLite lab book and an empty demo folder in ``tmp_path``, run
+    from the project folder; return the lab book's URL."""
+    url = f"sqlite:///{tmp_path / 'labbook.sqlite'}"
+    monkeypatch.setenv("SWIMLAB_DATABASE_URL", url)
+    demo = tmp_path / "demo"
+    demo.mkdir()
+    monkeypatch.setenv("SWIMLAB_DEMO_DIR", str(demo))
+    monkeypatch.chdir(ROOT)
+    return url
+
+
+def run_app():
+    """Run app.py once under Streamlit's AppTest and return it; fail on an uncaught exception."""
+    from streamlit.testing.v1 import AppTest
+
+    at = AppTest.from_file(str(ROOT / "app.py"), default_timeout=APP_TIMEOUT_S)
+    at.run()
+    assert not at.exception, at.exception
+    return at
+
+
+def texts(elements) -> str:
+    """The values of AppTest elements, one a line."""
+    return "\n".join(str(e.value) for e in elements)
 
 
 def free_port() -> int:

@@ -10,13 +10,12 @@ from __future__ import annotations
 from pathlib import Path
 
 import pytest
-from browser_support import ROOT, typical_session
+from browser_support import APP_TIMEOUT_S, ROOT, app_lab_book_url, run_app, texts, typical_session
 from streamlit.testing.v1 import AppTest
 
 from swimlab import auth
 from swimlab.session import Session
 
-TIMEOUT = 90
 ANA, BEN, PI = "tunnel B runs at noon", "a weir is not a dam", "flush, wait and measure"
 
 
@@ -31,13 +30,9 @@ def lab(tmp_path, monkeypatch):
     """A fresh lab book, no demo sessions, single-user mode unless a test says otherwise."""
     from swimlab.store import LabBook
 
-    url = f"sqlite:///{tmp_path / 'labbook.sqlite'}"
-    monkeypatch.setenv("SWIMLAB_DATABASE_URL", url)
-    (tmp_path / "demo").mkdir()
-    monkeypatch.setenv("SWIMLAB_DEMO_DIR", str(tmp_path / "demo"))
+    url = app_lab_book_url(tmp_path, monkeypatch)
     monkeypatch.delenv("SWIMLAB_MODE", raising=False)
     monkeypatch.setenv("HOME", str(tmp_path / "home"))  # no user settings file
-    monkeypatch.chdir(ROOT)
     book = LabBook.open(url)
     yield book
     book.close()
@@ -53,19 +48,8 @@ def server(lab, monkeypatch):
     return lab
 
 
-def _app() -> AppTest:
-    at = AppTest.from_file(str(ROOT / "app.py"), default_timeout=TIMEOUT)
-    at.run()
-    assert not at.exception, at.exception
-    return at
-
-
-def _texts(elements) -> str:
-    return "\n".join(str(e.value) for e in elements)
-
-
 def _footer(at: AppTest) -> str:
-    return _texts(at.sidebar.caption)
+    return texts(at.sidebar.caption)
 
 
 def _pages(at: AppTest) -> set[str]:
@@ -91,7 +75,7 @@ def _sign_in(at: AppTest, username: str, password: str) -> AppTest:
 
 
 def test_single_user_mode_needs_no_sign_in_and_keeps_the_name(lab):
-    at = _app()
+    at = run_app()
     assert at.title[0].value == "Lab book"
     assert "single-user mode · working as (no name yet) · no sign-in" in _footer(at)
     assert "Type your name once" in _footer(at)
@@ -99,7 +83,7 @@ def test_single_user_mode_needs_no_sign_in_and_keeps_the_name(lab):
     at.sidebar.text_input(key="app_user").input("R. Operator").run()
     assert "single-user mode · working as R. Operator" in _footer(at)
     assert lab.single_user_name() == "R. Operator"
-    again = _app()  # a new browser session: the name is asked once, then kept
+    again = run_app()  # a new browser session: the name is asked once, then kept
     assert again.sidebar.text_input(key="app_user").value == "R. Operator"
     assert "working as R. Operator" in _footer(again)
 
@@ -108,7 +92,7 @@ def test_single_user_actions_are_recorded_under_the_kept_name(lab):
     lab.set_single_user_name("R. Operator")
     session = Session.model_validate(typical_session())
     lab.create_session(session, {}, who="R. Operator")
-    at = _app()
+    at = run_app()
     at.selectbox(key="lb_open_id").set_value(session.session_id).run()
     at.button(key="lb_open").click().run()
     at.switch_page("app_pages/results.py").run()
@@ -120,9 +104,9 @@ def test_single_user_actions_are_recorded_under_the_kept_name(lab):
 
 def test_a_bad_mode_setting_stops_the_app_in_words(lab, monkeypatch):
     monkeypatch.setenv("SWIMLAB_MODE", "open-door")
-    at = AppTest.from_file(str(ROOT / "app.py"), default_timeout=TIMEOUT)
+    at = AppTest.from_file(str(ROOT / "app.py"), default_timeout=APP_TIMEOUT_S)
     at.run()
-    assert "The mode setting is not usable: field 'mode': must be one of" in _texts(at.error)
+    assert "The mode setting is not usable: field 'mode': must be one of" in texts(at.error)
     assert not at.title
 
 
@@ -132,7 +116,7 @@ def test_a_bad_mode_setting_stops_the_app_in_words(lab, monkeypatch):
 
 
 def test_lab_server_shows_only_the_sign_in_page(server):
-    at = _app()
+    at = run_app()
     assert at.title[0].value == "Sign in"
     assert _pages(at) == {"sign_in"}
     assert "lab-server mode · not signed in" in _footer(at)
@@ -141,20 +125,20 @@ def test_lab_server_shows_only_the_sign_in_page(server):
 
 
 def test_a_wrong_password_is_refused(server):
-    at = _sign_in(_app(), "ana", "not the password at all")
-    assert "Not signed in: the account name or the password is wrong" in _texts(at.error)
+    at = _sign_in(run_app(), "ana", "not the password at all")
+    assert "Not signed in: the account name or the password is wrong" in texts(at.error)
     assert at.title[0].value == "Sign in" and "app_person" not in at.session_state
-    assert "not the password" not in _texts(at.error) + _texts(at.markdown)
+    assert "not the password" not in texts(at.error) + texts(at.markdown)
 
 
 def test_lock_out_on_the_sign_in_page(server):
     server.set_lab_settings({"login_attempts_max": 2}, who="pi", reason="strict")
-    at = _app()
+    at = run_app()
     for _ in range(2):
         _sign_in(at, "ana", "not the password at all")
-    assert "too many failed logins: the account is locked until" in _texts(at.error)
+    assert "too many failed logins: the account is locked until" in texts(at.error)
     _sign_in(at, "ana", ANA)  # the right password, while locked
-    assert at.title[0].value == "Sign in" and "locked until" in _texts(at.error)
+    assert at.title[0].value == "Sign in" and "locked until" in texts(at.error)
 
 
 @pytest.mark.parametrize(
@@ -166,7 +150,7 @@ def test_lock_out_on_the_sign_in_page(server):
     ],
 )
 def test_each_role_gets_its_own_pages(server, username, password, role_pages, missing):
-    at = _sign_in(_app(), username, password)
+    at = _sign_in(run_app(), username, password)
     assert at.title[0].value == "Lab book"
     pages = _pages(at)
     assert role_pages <= pages and not (missing & pages), pages
@@ -180,7 +164,7 @@ def test_the_review_page_acts_as_the_signed_in_reviewer(server):
     session = Session.model_validate(typical_session())
     server.create_session(session, {}, who="ana")
     server.submit(session.session_id, who="ana")
-    at = _sign_in(_app(), "ben", BEN)
+    at = _sign_in(run_app(), "ben", BEN)
     at.switch_page("app_pages/review.py").run()
     assert at.text_input(key="rv_name_signed_in").value == "Ben Okafor (ben)"
     assert at.text_input(key="rv_name_signed_in").disabled
@@ -191,7 +175,7 @@ def test_the_review_page_acts_as_the_signed_in_reviewer(server):
 
 
 def test_an_admin_adds_a_person_on_the_people_page(server):
-    at = _sign_in(_app(), "pi", PI)
+    at = _sign_in(run_app(), "pi", PI)
     at.switch_page("app_pages/people.py").run()
     assert not at.exception, at.exception
     form = [t for t in at.text_input if t.label in ("Account name", "Name shown on pages and reports",
@@ -209,7 +193,7 @@ def test_an_admin_adds_a_person_on_the_people_page(server):
 
 
 def test_a_role_change_or_deactivation_counts_at_the_next_page_run(server):
-    at = _sign_in(_app(), "ben", BEN)
+    at = _sign_in(run_app(), "ben", BEN)
     assert "review" in _pages(at)
     server.set_role("ben", "operator", who="pi", reason="reviews by staff only")
     at.run()
@@ -220,7 +204,7 @@ def test_a_role_change_or_deactivation_counts_at_the_next_page_run(server):
 
 
 def test_sign_out_forgets_the_session(server):
-    at = _sign_in(_app(), "ana", ANA)
+    at = _sign_in(run_app(), "ana", ANA)
     at.button(key="app_sign_out").click().run()
     assert not at.exception, at.exception
     assert at.title[0].value == "Sign in" and "app_person" not in at.session_state
@@ -230,7 +214,7 @@ def test_an_admin_unlocks_and_deactivates_on_the_people_page(server):
     server.set_lab_settings({"login_attempts_max": 1}, who="pi", reason="strict")
     with pytest.raises(auth.LockedOutError):
         server.login("ana", "not the password at all")
-    at = _sign_in(_app(), "pi", PI)
+    at = _sign_in(run_app(), "pi", PI)
     at.switch_page("app_pages/people.py").run()
     at.selectbox(key="pp_who").set_value("ana").run()
     at.button(key="pp_unlock").click().run()
@@ -247,30 +231,30 @@ def test_an_admin_unlocks_and_deactivates_on_the_people_page(server):
     at.text_input(key="pp_why").input("stepping down").run()
     at.selectbox(key="pp_role").set_value("reviewer").run()
     at.button(key="pp_set_role").click().run()
-    assert "Not done: 'pi' is the lab's last active admin" in _texts(at.error)
+    assert "Not done: 'pi' is the lab's last active admin" in texts(at.error)
     assert server.get_person("pi").role == "admin"
 
 
 def test_a_person_changes_their_own_password(server):
-    at = _sign_in(_app(), "ana", ANA)
+    at = _sign_in(run_app(), "ana", ANA)
     boxes = {t.label: t for t in at.sidebar.text_input}
     boxes["Current password"].input("not my password at all")
     boxes["New password"].input("a brand new long password")
     boxes["New password again"].input("a brand new long password")
     next(b for b in at.sidebar.button if b.label == "Change").click().run()
-    assert "Current password: it is not right" in _texts(at.sidebar.error)
+    assert "Current password: it is not right" in texts(at.sidebar.error)
     assert server.get_person("ana").failed_logins == 1
     boxes = {t.label: t for t in at.sidebar.text_input}
     boxes["Current password"].input(ANA)
     boxes["New password"].input("a brand new long password")
     boxes["New password again"].input("a brand new long password")
     next(b for b in at.sidebar.button if b.label == "Change").click().run()
-    assert "Password changed." in _texts(at.sidebar.success)
+    assert "Password changed." in texts(at.sidebar.success)
     assert server.login("ana", "a brand new long password").username == "ana"
 
 
 def test_an_admin_sets_the_lock_out_on_the_people_page(server):
-    at = _sign_in(_app(), "pi", PI)
+    at = _sign_in(run_app(), "pi", PI)
     at.switch_page("app_pages/people.py").run()
     at.number_input[0].set_value(3)
     at.number_input[1].set_value(30.0)
@@ -285,12 +269,12 @@ def test_an_admin_sets_the_lock_out_on_the_people_page(server):
 def test_single_user_mode_warns_when_told_to_listen_beyond_this_computer(lab):
     from streamlit import config
 
-    at = AppTest.from_file(str(ROOT / "app.py"), default_timeout=TIMEOUT)
+    at = AppTest.from_file(str(ROOT / "app.py"), default_timeout=APP_TIMEOUT_S)
     old = config.get_option("server.address")
     config.set_option("server.address", "0.0.0.0")
     try:
         at.run()
     finally:
         config.set_option("server.address", old)
-    assert "single-user mode asks for no password, but the server listens on 0.0.0.0" in _texts(at.warning)
+    assert "single-user mode asks for no password, but the server listens on 0.0.0.0" in texts(at.warning)
     assert at.title[0].value == "Lab book"  # connections from this computer are still served

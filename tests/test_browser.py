@@ -8,7 +8,6 @@ unless CI is "true" (then it fails).
 
 from __future__ import annotations
 
-import hashlib
 import os
 import time
 from pathlib import Path
@@ -18,8 +17,10 @@ from browser_support import (
     CHROMIUM,
     CHROMIUM_ARGS,
     ROOT,
+    attach_logger_file,
     free_port,
     logger_file,
+    require_chromium,
     start_app,
     stop_app,
     typical_session,
@@ -31,20 +32,10 @@ SHOTS = Path(os.environ.get("SWIMLAB_SCREENSHOT_DIR", ROOT / "test-artifacts" / 
 VIEWPORT = {"width": 1400, "height": 1000}
 
 
-def _require_chromium() -> None:
-    if Path(CHROMIUM).exists():
-        return
-    reason = f"{CHROMIUM} is not installed (Debian package 'chromium'); the browser test needs it"
-    if os.environ.get("CI") == "true":
-        pytest.fail(reason)
-    pytest.skip(reason)
-
-
 @pytest.fixture
 def app_server(tmp_path):
     """The app on a free loopback port with a lab book holding one earlier trial (KB-02)."""
-    _require_chromium()
-    from swimlab.io import logger
+    require_chromium()
     from swimlab.io.bundle import write_bundle
     from swimlab.session import Session
     from swimlab.store import LabBook
@@ -52,10 +43,7 @@ def app_server(tmp_path):
     earlier = typical_session()
     earlier.update(session_id="kb02earlier", title="Kestrel Bay KB-02 step test")
     earlier["fish"][0].update(fish_id="KB-02", mass_g=290.0)
-    name, raw = logger_file(earlier, seed=3)
-    sha = hashlib.sha256(raw).hexdigest()
-    earlier["raw_files"] = [{"sha256": sha, "name": name, "role": "trial",
-                             "mapping": logger.guess_mapping(raw, name=name).to_dict()}]
+    sha, raw = attach_logger_file(earlier, seed=3)
     demo = tmp_path / "demo"
     demo.mkdir()
     write_bundle(Session.model_validate(earlier), {sha: raw}, demo / "kb02")

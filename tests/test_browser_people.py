@@ -10,16 +10,15 @@ session of one browser tab, not in a cookie. A page outside a person's role answ
 
 from __future__ import annotations
 
-import hashlib
 import os
-from pathlib import Path
 
 import pytest
 from browser_support import (
     CHROMIUM,
     CHROMIUM_ARGS,
+    attach_logger_file,
     free_port,
-    logger_file,
+    require_chromium,
     start_app,
     stop_app,
     typical_session,
@@ -32,31 +31,17 @@ pytestmark = pytest.mark.browser
 ANA, BEN = "tunnel B runs at noon", "a weir is not a dam"
 
 
-def _require_chromium() -> None:
-    if Path(CHROMIUM).exists():
-        return
-    reason = f"{CHROMIUM} is not installed (Debian package 'chromium'); the browser test needs it"
-    if os.environ.get("CI") == "true":
-        pytest.fail(reason)
-    pytest.skip(reason)
-
-
 @pytest.fixture
 def lab_server(tmp_path, monkeypatch):
     """The app in lab-server mode; ana (operator) has one analysable draft, ben reviews."""
-    _require_chromium()
+    require_chromium()
     from swimlab.session import Session
     from swimlab.store import LabBook
 
     url = f"sqlite:///{tmp_path / 'labbook.sqlite'}"
     data = typical_session()
     data.update(session_id="kb03lab", title="Kestrel Bay KB-03 step test", operator="Ana Ruiz")
-    name, raw = logger_file(data, seed=5)
-    from swimlab.io import logger
-
-    sha = hashlib.sha256(raw).hexdigest()
-    data["raw_files"] = [{"sha256": sha, "name": name, "role": "trial",
-                          "mapping": logger.guess_mapping(raw, name=name).to_dict()}]
+    sha, raw = attach_logger_file(data, seed=5)
     with LabBook.open(url) as book:
         book.add_person("ana", display_name="Ana Ruiz", role="operator", password=ANA, who="setup")
         book.add_person("ben", display_name="Ben Okafor", role="reviewer", password=BEN, who="setup")
@@ -204,7 +189,7 @@ def sso_server(tmp_path, monkeypatch):
     ben@lab.example is a reviewer of the lab (no local password); the provider vouches for any
     address typed into its form, so a stranger can be tried too.
     """
-    _require_chromium()
+    require_chromium()
     oidc_provider_mock = pytest.importorskip("oidc_provider_mock")
     pytest.importorskip("authlib")  # streamlit[auth]
     from swimlab.store import LabBook

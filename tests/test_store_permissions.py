@@ -246,9 +246,14 @@ def _run_and_compare(book: LabBook, attempt) -> None:
 # --------------------------------------------------------------------------------------------
 
 
-def _reviewer(book: LabBook, username="ben", display_name="Ben Okafor") -> ActingLabBook:
-    book.add_person(username, display_name=display_name, role="reviewer", password=PASSWORD, who="setup")
+def _signed_in(book: LabBook, username: str, display_name: str, role: str) -> ActingLabBook:
+    """Add a person with a local password and return them signed in."""
+    book.add_person(username, display_name=display_name, role=role, password=PASSWORD, who="setup")
     return book.as_person(book.login(username, PASSWORD))
+
+
+def _reviewer(book: LabBook, username="ben", display_name="Ben Okafor") -> ActingLabBook:
+    return _signed_in(book, username, display_name, "reviewer")
 
 
 @pytest.mark.parametrize(
@@ -274,8 +279,7 @@ def test_four_eyes_for_a_reviewer_with_a_hand_in_the_session(labbook, how):
 
 
 def test_submit_then_approve_by_two_signed_in_people(labbook):
-    labbook.add_person("olga", display_name="Olga Berg", role="operator", password=PASSWORD, who="setup")
-    olga = labbook.as_person(labbook.login("olga", PASSWORD))
+    olga = _signed_in(labbook, "olga", "Olga Berg", "operator")
     ben = _reviewer(labbook)
     session = make_session(operator="Olga Berg")
     olga.create_session(session)
@@ -443,8 +447,7 @@ def test_the_trusted_interface_still_takes_who(labbook):
 
 
 def test_sign_off_names_who_entered_and_who_approved(labbook):
-    labbook.add_person("olga", display_name="Olga Berg", role="operator", password=PASSWORD, who="setup")
-    olga = labbook.as_person(labbook.login("olga", PASSWORD))
+    olga = _signed_in(labbook, "olga", "Olga Berg", "operator")
     ben = _reviewer(labbook)
     session = make_session(operator="Olga Berg")
     olga.create_session(session)
