@@ -314,10 +314,8 @@ def test_model_choice_by_aicc_and_the_tie_rule():
     assert fits.best == "power" and fits.delta_aicc < -2
     y = simulate("exponential", 21)
     fits = perf.fit_speed_metabolism(SPEEDS_8X3, y, n_boot=0)
-    if abs(fits.delta_aicc) < 2:
-        assert fits.best == "exponential" and "< 2" in fits.best_rule
-    else:
-        assert fits.best == ("power" if fits.delta_aicc < 0 else "exponential")
+    assert abs(fits.delta_aicc) < 2  # this seeded sample falls in the tie (ΔAICc ≈ 1.7)
+    assert fits.best == "exponential" and "< 2" in fits.best_rule
     assert fits.get() is fits.get(fits.best)
 
 
