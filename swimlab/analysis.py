@@ -36,7 +36,7 @@ from swimlab._tables import json_records
 from swimlab.constants import CM_PER_M, G_PER_KG
 from swimlab.errors import InputError, OutOfRangeError
 from swimlab.io import logger
-from swimlab.session import Session, step_table
+from swimlab.session import Session, group_fatigue_time_s, step_table
 from swimlab.settings import LabSettings
 
 CM = 1.0 / CM_PER_M  # metres per centimetre
@@ -346,8 +346,6 @@ def _groups(session: Session, settings: LabSettings, fish_table: pd.DataFrame, s
             times = [e.time_s for e in session.events
                      if e.kind == "fatigue" and e.fish_id in group.fish_ids]
             group_events = [e.time_s for e in session.events if e.kind == "fatigue" and e.fish_id == group.group_id]
-            from swimlab.session import group_fatigue_time_s
-
             fatigue = group_fatigue_time_s(group.fatigue_definition or "", times, unit.n_fish)
             source = f"fish fatigue events ({group.fatigue_definition})" if fatigue is not None else "none recorded"
             if fatigue is None and group_events:
@@ -400,7 +398,7 @@ def _uptake(session: Session, settings: LabSettings, logged, flags: list[dict]):
     pressure_pa = w.barometric_pressure_kpa * 1000.0
     time_s = logged.time_s
     units = {u.chamber: u for u in session.units()}
-    chambers = units
+    chambers = list(units)
     missing = sorted(set(chambers) - set(logged.oxygen))
     if missing:
         raise InputError(
@@ -572,21 +570,16 @@ def _steps(session, steps_sched, measure, water_props, section_area, calibration
                 corrected = np.asarray(flume.corrected_speed(set_speed, length, depth, width, section_area), dtype=float)
         except InputError:
             corrected = np.full(set_speed.shape, np.nan)
-        if unit.is_group and nu is not None:
-            # the drag of fish in a school is not that of each fish alone: not computed for a group
-            re = np.asarray(hydrodynamics.reynolds_number(length, np.where(np.isfinite(corrected), corrected, set_speed), nu),
-                            dtype=float)
-            regime = np.asarray(hydrodynamics.flow_regime(re), dtype=object)
-            drag = power = np.full(set_speed.shape, np.nan)
-        elif nu is not None and rho is not None:
+        re = drag = power = np.full(set_speed.shape, np.nan)
+        regime = np.full(set_speed.shape, "", dtype=object)
+        if nu is not None:  # _water gives the viscosity only with the density
             speed_for_hydro = np.where(np.isfinite(corrected), corrected, set_speed)
             re = np.asarray(hydrodynamics.reynolds_number(length, speed_for_hydro, nu), dtype=float)
             regime = np.asarray(hydrodynamics.flow_regime(re), dtype=object)
-            drag = np.asarray(hydrodynamics.drag(speed_for_hydro, length, depth, width, rho, nu), dtype=float)
-            power = np.asarray(hydrodynamics.drag_power(speed_for_hydro, length, depth, width, rho, nu), dtype=float)
-        else:
-            re = drag = power = np.full(set_speed.shape, np.nan)
-            regime = np.full(set_speed.shape, "", dtype=object)
+            # the drag of fish in a school is not that of each fish alone: not computed for a group
+            if not unit.is_group:
+                drag = np.asarray(hydrodynamics.drag(speed_for_hydro, length, depth, width, rho, nu), dtype=float)
+                power = np.asarray(hydrodynamics.drag_power(speed_for_hydro, length, depth, width, rho, nu), dtype=float)
         own = measure[(measure["fish_id"] == unit.unit_id) & measure["used"]] if not measure.empty else measure
         for i, number in enumerate(steps_sched["step"].to_numpy()):
             in_step = own[own["step"] == number] if not own.empty else own

@@ -144,21 +144,14 @@ def _schedule_flags(speeds: np.ndarray, durations: np.ndarray, settings: LabSett
             f"step {i + 1} lasted {durations[i]:g} s < {settings.step_duration_min_s:g} s",
             scope="step", where=f"step {i + 1}", step=int(i + 1),
         ))
-    spread_t = _relative_spread(durations)
-    if spread_t > settings.step_unevenness_max:
-        flags.append(flag(
-            "STEPS_UNEVEN",
-            f"step durations range from {durations.min():g} to {durations.max():g} s "
-            f"(spread {spread_t:.0%} of the median > {settings.step_unevenness_max:.0%})",
-        ))
-    increments = np.diff(speeds)
-    spread_u = _relative_spread(increments)
-    if spread_u > settings.step_unevenness_max:
-        flags.append(flag(
-            "STEPS_UNEVEN",
-            f"speed increments range from {increments.min():g} to {increments.max():g} m/s "
-            f"(spread {spread_u:.0%} of the median > {settings.step_unevenness_max:.0%})",
-        ))
+    for what, values, unit in (("step durations", durations, "s"), ("speed increments", np.diff(speeds), "m/s")):
+        spread = _relative_spread(values)
+        if spread > settings.step_unevenness_max:
+            flags.append(flag(
+                "STEPS_UNEVEN",
+                f"{what} range from {values.min():g} to {values.max():g} {unit} "
+                f"(spread {spread:.0%} of the median > {settings.step_unevenness_max:.0%})",
+            ))
     return flags
 
 
