@@ -36,7 +36,9 @@ import json
 import os
 import sys
 from collections.abc import Sequence
+from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 from swimlab import __version__
 from swimlab.errors import SwimlabError
@@ -220,29 +222,57 @@ def _export(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-def _analyse(args: argparse.Namespace) -> int:
-    lab_settings = None
+@dataclass(frozen=True)
+class _Source:
+    """A session to analyse, named by ``--session`` (the lab book) or ``BUNDLE_PATH``."""
+
+    session: Any
+    raw: dict[str, bytes]
+    stored: Any = None
+    """The lab book's :class:`~swimlab.store.StoredSession`; ``None`` for a bundle."""
+    audit: Any = None
+    """The session's audit trail, when asked for; ``None`` for a bundle."""
+    lab_settings: dict[str, Any] | None = None
+    notes: tuple[str, ...] = ()
+    """What reading the bundle noticed."""
+
+
+def _source(args: argparse.Namespace, *, audit: bool = False) -> _Source:
     if args.session:
         with _open_book(args) as book:
             stored = book.get_session(args.session)
-            raw = book.raw_files_of(stored.session)
-            lab_settings = book.get_lab_setting_overrides()
-        session = stored.session
-    else:
-        from swimlab.io.bundle import read_bundle
+            return _Source(
+                stored.session,
+                book.raw_files_of(stored.session),
+                stored=stored,
+                audit=book.audit_trail(args.session) if audit else None,
+                lab_settings=book.get_lab_setting_overrides(),
+            )
+    from swimlab.io.bundle import read_bundle
 
-        contents = read_bundle(args.bundle)
-        session, raw = contents.session, contents.raw_files
-        for note in contents.problems:
-            print(f"note: {note}")
+    contents = read_bundle(args.bundle)
+    return _Source(contents.session, contents.raw_files, notes=tuple(contents.problems))
+
+
+def _analysed(args: argparse.Namespace, source: _Source):
+    """The analysis of ``source``; a repeat swim's first swim is analysed too, for the recovery ratio."""
     from swimlab.analysis import analyse  # the science stack is loaded only when needed
 
+    session, lab_settings = source.session, source.lab_settings
     extra = {}
     if session.protocol.type == "repeat_ucrit" and session.protocol.first_swim_session_id:
         first = _first_swim(args, session.protocol.first_swim_session_id)
         if first is not None:  # the first swim's analysis gives the recovery ratio
             extra["first_swim"] = analyse(first[0], first[1], lab_settings=lab_settings)
-    result = analyse(session, raw, lab_settings=lab_settings, **extra)
+    return analyse(session, source.raw, lab_settings=lab_settings, **extra)
+
+
+def _analyse(args: argparse.Namespace) -> int:
+    source = _source(args)
+    for note in source.notes:
+        print(f"note: {note}")
+    session = source.session
+    result = _analysed(args, source)
     out = Path(args.out) if args.out else Path(f"analysis-{session.session_id}")
     files = {
         "steps.csv": result.steps.to_csv(index=False).encode("utf-8"),
@@ -346,26 +376,13 @@ def _result_lines(result) -> list[str]:
 
 
 def _report(args: argparse.Namespace) -> int:
-    status = audit = lab_settings = None
-    if args.session:
-        with _open_book(args) as book:
-            status = book.get_session(args.session)
-            raw = book.raw_files_of(status.session)
-            audit = book.audit_trail(args.session)
-            lab_settings = book.get_lab_setting_overrides()
-        session = status.session
-    else:
-        from swimlab.io.bundle import read_bundle
-
-        contents = read_bundle(args.bundle)
-        session, raw = contents.session, contents.raw_files
+    source = _source(args, audit=True)
+    session = source.session
     fmt = args.format or ("pdf" if str(args.out).lower().endswith(".pdf") else "html")
-    from swimlab.analysis import analyse
     from swimlab.report import write_report
 
-    result = analyse(session, raw, lab_settings=lab_settings)
     path = write_report(
-        session, result, args.out, fmt=fmt, status=status, audit=audit,
+        session, _analysed(args, source), args.out, fmt=fmt, status=source.stored, audit=source.audit,
         page_size=args.page_size, figures=not args.no_figures,
     )
     print(f"wrote the {fmt.upper()} report of session {session.session_id} ({session.title}) to {path}")

@@ -335,3 +335,15 @@ def test_report_of_a_missing_bundle_is_one_line_on_stderr(capsys, tmp_path):
     code, _, err = run(capsys, "report", str(tmp_path / "nothing"), "--out", str(tmp_path / "r.html"))
     assert code == 2
     assert err.count("\n") == 1 and "Traceback" not in err
+
+
+def test_report_of_a_repeat_swim_states_its_recovery_ratio(capsys, tmp_path):
+    # As `analyse` does, `report` analyses the first swim (the bundle beside this one) so that
+    # the recovery ratio Ucrit2 / Ucrit1 is in the report.
+    demo = Path(__file__).resolve().parents[1] / "demo_sessions" / "bw26-p02-second-swim"
+    out = tmp_path / "report.html"
+    code, _, err = run(capsys, "report", str(demo), "--out", str(out), "--no-figures")
+    assert (code, err) == (0, "")
+    html = out.read_text(encoding="utf-8")
+    assert "the repeat-swim recovery ratio Ucrit₂ / Ucrit₁ was" in html
+    assert "session bw26-p01-first-swim" in html
