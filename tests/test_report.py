@@ -671,6 +671,8 @@ def test_ramp_report_names_its_protocol_and_shows_no_ucrit(protocol_demos):
     assert all("Ucrit" not in row[1] for b in step_rows for row in b["rows"])  # no step Ucrit for a ramp
     exported = rep.tables()["protocol_results"]
     assert set(exported["protocol"]) == {"ramp"}
+    # The demo's own record: the ramp starts at 15 cm/s at 3600 s and rises 1.5 cm/s per min until
+    # fatigue at 6000 s, so the set speed at fatigue is 15 + 1.5 × 40 = 75 cm/s.
     assert exported.set_index("quantity").loc["ramp_umax_set", "value"] == pytest.approx(75.0)
     html = text(rep.html(figures=False))
     assert "the ramp Umax was 75.0 cm/s on set speed" in html and "Farrell, A. P. (2008)" in html
@@ -723,7 +725,7 @@ def test_study_report_endurance_survival_and_repeat_pairs(protocol_demos):
     # the study table names protocol results by their protocol; a ramp has no Ucrit there
     study = tables["study"].set_index("session_id")
     assert np.isnan(study.loc["bw26-r01-ramp", "ucrit_cm_s"])
-    assert study.loc["bw26-r01-ramp", "ramp_umax_set_cm_s"] == pytest.approx(75.0)
+    assert study.loc["bw26-r01-ramp", "ramp_umax_set_cm_s"] == pytest.approx(75.0)  # 15 + 1.5 × 40, as above
     assert study.loc["bw26-p02-second-swim", "repeat_recovery_ratio"] == pytest.approx(pairs["recovery_ratio"].iloc[0])
     # the fish swum twice counts once in the spread between fish (first swims only)
     spread = tables["spread"].set_index(["species", "quantity"])
