@@ -36,7 +36,7 @@ from swimlab._tables import json_records
 from swimlab.constants import CM_PER_M, G_PER_KG
 from swimlab.errors import InputError, OutOfRangeError
 from swimlab.io import logger
-from swimlab.session import Session, group_fatigue_time_s, step_table
+from swimlab.session import Session, step_table
 from swimlab.settings import LabSettings
 
 CM = 1.0 / CM_PER_M  # metres per centimetre
@@ -327,7 +327,7 @@ def _groups(session: Session, settings: LabSettings, fish_table: pd.DataFrame, s
     first order, ε = Σ ε_i (the usual wind-tunnel treatment of several small bodies; from memory),
     and the blocking ratio as Σ A_i / A_section. The group's fatigue time is
     ``protocol.fatigue_time_s`` or, when it is not entered, the fish's fatigue events read by the
-    group's definition (:func:`swimlab.session.group_fatigue_time_s`).
+    group's definition (:meth:`swimlab.session.Session.group_fatigue_from_events`).
     """
     rows = []
     p = session.protocol
@@ -343,10 +343,8 @@ def _groups(session: Session, settings: LabSettings, fish_table: pd.DataFrame, s
         if p.fatigue_time_s is not None:
             fatigue, source = p.fatigue_time_s, "protocol.fatigue_time_s"
         else:
-            times = [e.time_s for e in session.events
-                     if e.kind == "fatigue" and e.fish_id in group.fish_ids]
             group_events = [e.time_s for e in session.events if e.kind == "fatigue" and e.fish_id == group.group_id]
-            fatigue = group_fatigue_time_s(group.fatigue_definition or "", times, unit.n_fish)
+            fatigue = session.group_fatigue_from_events(group)
             source = f"fish fatigue events ({group.fatigue_definition})" if fatigue is not None else "none recorded"
             if fatigue is None and group_events:
                 fatigue, source = min(group_events), "group fatigue event"

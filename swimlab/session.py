@@ -386,6 +386,15 @@ class Session(_Model):
         """The group a fish was swum in, or None when it swam alone."""
         return next((g for g in self.groups if fish_id in g.fish_ids), None)
 
+    def group_fatigue_from_events(self, group: FishGroup) -> float | None:
+        """The group's fatigue time read from its fish's fatigue events by its definition. [s]
+
+        None when too few of its fish fatigued, or for the ``stated`` definition (see
+        :func:`group_fatigue_time_s`).
+        """
+        times = [e.time_s for e in self.events if e.kind == "fatigue" and e.fish_id in group.fish_ids]
+        return group_fatigue_time_s(group.fatigue_definition or "", times, len(group.fish_ids))
+
 
 class AnalysisUnit:
     """One chamber's subject: a single fish or a group (see :meth:`Session.units`).
@@ -687,8 +696,7 @@ def _group_checks(session: Session, add) -> None:
     for group in session.groups:
         if group.fatigue_definition in (None, "stated"):
             continue
-        times = [e.time_s for e in session.events if e.kind == "fatigue" and e.fish_id in group.fish_ids]
-        derived = group_fatigue_time_s(group.fatigue_definition, times, len(group.fish_ids))
+        derived = session.group_fatigue_from_events(group)
         if derived is not None and p.fatigue_time_s is not None and abs(derived - p.fatigue_time_s) > 1.0:
             add("protocol.fatigue_time_s",
                 f"{p.fatigue_time_s:g} s, but by group {group.group_id!r}'s definition ({group.fatigue_definition}) "
