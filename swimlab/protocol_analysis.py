@@ -1061,11 +1061,10 @@ def _kinematics(session: Session, analysis: Analysis, out: _Collector) -> dict[s
                     bainbridge_in_range=bool(r["bainbridge_in_range"]))
         if line is not None:
             how = f"least squares over {line.n} tail-beat record(s) (Bainbridge 1958; Videler & Wardle 1991)"
-            out.add("kinematics", fid, "kinematics_fs_intercept", line.intercept_hz, "Hz", how,
-                    None if line.intercept_se is None else _ci(line.intercept_hz, line.intercept_se, line.n))
+            slope_ci = line.ci95("slope")
+            out.add("kinematics", fid, "kinematics_fs_intercept", line.intercept_hz, "Hz", how, line.ci95("intercept"))
             out.add("kinematics", fid, "kinematics_fs_slope", line.slope_hz_per_m_s * CM, "Hz per cm/s", how,
-                    None if line.slope_se is None else tuple(v * CM for v in _ci(line.slope_hz_per_m_s, line.slope_se,
-                                                                                 line.n)))
+                    None if slope_ci is None else tuple(v * CM for v in slope_ci))
             out.add("kinematics", fid, "kinematics_fs_r2", line.r2, "-", how)
             if line.stride_length_m is not None:
                 out.add("kinematics", fid, "kinematics_stride_length_line", line.stride_length_m / CM, "cm",
@@ -1082,12 +1081,6 @@ def _scaled(value: Any, factor: float) -> Any:
     if isinstance(value, bool | np.bool_):
         return value
     return float(value) * factor
-
-
-def _ci(value: float, se: float, n: int) -> tuple[float, float]:
-    """95 % t interval of a least-squares parameter with n − 2 degrees of freedom."""
-    t = float(stats.t.ppf(0.975, n - 2))
-    return value - t * se, value + t * se
 
 
 # =============================================================================================

@@ -65,6 +65,13 @@ def test_frequency_speed_line_matches_statsmodels_ols():
     assert (line.intercept_se, line.slope_se) == pytest.approx(tuple(ols.bse), rel=1e-10)
     assert line.r2 == pytest.approx(ols.rsquared, rel=1e-10)
     assert line.frequency_hz(0.5) == pytest.approx(ols.params[0] + 0.5 * ols.params[1])
+    # Reference: statsmodels' 95 % confidence intervals of the same parameters.
+    ci = ols.conf_int(0.05)
+    assert line.ci95("intercept") == pytest.approx(tuple(ci[0]), rel=1e-10)
+    assert line.ci95("slope") == pytest.approx(tuple(ci[1]), rel=1e-10)
+    assert K.frequency_speed_line(u[:2], f[:2]).ci95("slope") is None  # two points: no SE
+    with pytest.raises(ValueError, match="valid"):
+        line.ci95("r2")
 
 
 def test_step_kinematics_recovers_simulated_fish():

@@ -232,6 +232,19 @@ class FrequencySpeedLine:
         u = _validate.finite("speed_m_s", speed_m_s, "m/s")
         return _validate.like_input(self.intercept_hz + self.slope_hz_per_m_s * u, speed_m_s)
 
+    def ci95(self, parameter: str) -> tuple[float, float] | None:
+        """95 % t interval of ``"intercept"`` [Hz] or ``"slope"`` [Hz per m/s], or None without an SE.
+
+        value ± t₀.₉₇₅(n − 2) · SE, the usual interval of a least-squares parameter.
+        """
+        _validate.choice("parameter", parameter, ("intercept", "slope"))
+        value, se = ((self.intercept_hz, self.intercept_se) if parameter == "intercept"
+                     else (self.slope_hz_per_m_s, self.slope_se))
+        if se is None:
+            return None
+        t = float(stats.t.ppf(0.975, self.n - 2))
+        return value - t * se, value + t * se
+
 
 def frequency_speed_line(speed_m_s: Any, frequency_hz: Any, *, protocol: str = "step_ucrit") -> FrequencySpeedLine:
     """Fit f = a + b U by ordinary least squares for one fish.
