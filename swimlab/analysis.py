@@ -196,14 +196,12 @@ def analyse(
         phases, measure, concentration, windows = _uptake(session, settings, logged, flags)
 
     steps_sched = pd.DataFrame(step_table(session), columns=["step", "start_s", "end_s", "set_speed_m_s"])
-    group_fatigue = groups["fatigue_time_s"].dropna() if not groups.empty else pd.Series(dtype=float)
-    measure = _assign_steps(measure, steps_sched, session,
-                            fatigue_s=None if session.protocol.fatigue_time_s is not None or group_fatigue.empty
-                            else float(group_fatigue.min()))
+    group_fatigue = {} if groups.empty else dict(zip(groups["group_id"], groups["fatigue_time_s"], strict=True))
+    measure = _assign_steps(measure, steps_sched, session, group_fatigue)
     steps = _steps(session, steps_sched, measure, water_props, section_area, calibration, flags)
     sample_interval_s = _sample_interval(traces)
     results, fits, ucrits, steps = _performance(
-        session, settings, steps_sched, steps, measure, windows, flags, n_boot, seed, sample_interval_s, groups,
+        session, settings, steps_sched, steps, measure, windows, flags, n_boot, seed, sample_interval_s, group_fatigue,
     )
 
     base = Analysis(
@@ -510,13 +508,13 @@ def _window_mo2(windows, phases_used, session, settings, mass_kg, sample_interva
 
 
 def _assign_steps(measure: pd.DataFrame, steps_sched: pd.DataFrame, session: Session,
-                  fatigue_s: float | None = None) -> pd.DataFrame:
+                  group_fatigue_s: Mapping[str, float] | None = None) -> pd.DataFrame:
     """Label each measure phase with the speed step it lies in (0 = before the first step).
 
     A phase belongs to a step when its mid-time falls inside the step; a phase after fatigue
     (or after the last step) is labelled ``-1`` and is not used for the speed–MO2 curve. The
-    fatigue time is ``protocol.fatigue_time_s``, or ``fatigue_s`` when that is not entered (a
-    group's fatigue read from its fish's events).
+    fatigue time is ``protocol.fatigue_time_s``; a group's is its own, ``group_fatigue_s`` by
+    group id (:attr:`Analysis.groups`: the entered time, or read from its fish's events).
     """
     if measure.empty:
         return measure
@@ -528,9 +526,10 @@ def _assign_steps(measure: pd.DataFrame, steps_sched: pd.DataFrame, session: Ses
         idx = np.searchsorted(starts, mid, side="right") - 1
         inside = (idx >= 0) & (mid < ends[np.clip(idx, 0, None)])
         step = np.where(inside, steps_sched["step"].to_numpy()[np.clip(idx, 0, None)], np.where(mid >= ends[-1], -1, 0))
-    fatigue = session.protocol.fatigue_time_s if session.protocol.fatigue_time_s is not None else fatigue_s
-    if fatigue is not None:
-        step = np.where(measure["end_s"].to_numpy() > fatigue, np.where(mid > fatigue, -1, step), step)
+    entered = session.protocol.fatigue_time_s
+    fatigue = measure["fish_id"].map(dict(group_fatigue_s or {})).to_numpy(dtype=float)
+    fatigue = np.where(np.isnan(fatigue), np.nan if entered is None else entered, fatigue)  # NaN: no fatigue
+    step = np.where(measure["end_s"].to_numpy() > fatigue, np.where(mid > fatigue, -1, step), step)
     return measure.assign(step=step.astype(int))
 
 
@@ -622,7 +621,7 @@ def _note_group(rows: list[dict], start: int, note: str) -> None:
 
 
 def _performance(session, settings, steps_sched, steps, measure, windows, flags, n_boot, seed, sample_interval_s,
-                 groups=None):
+                 group_fatigue=None):
     result_rows: list[dict] = []
     fits: dict[str, Any] = {}
     ucrits: dict[str, dict[str, Any]] = {}
@@ -640,8 +639,7 @@ def _performance(session, settings, steps_sched, steps, measure, windows, flags,
             "note": note,
         })
 
-    group_fatigue = {} if groups is None or groups.empty else dict(zip(groups["group_id"], groups["fatigue_time_s"],
-                                                                           strict=True))
+    group_fatigue = group_fatigue or {}
     for unit in session.units():
         fid = unit.unit_id
         length = unit.total_length_cm * CM

@@ -323,3 +323,35 @@ def test_phases_after_a_group_fatigue_read_from_events_are_not_used(simulated):
     assert (m.loc[mid > t, "step"] == -1).all() and (m.loc[mid > t + 1, "step"] == -1).any()
     assert result.steps.set_index("step").loc[5, "n_phases"] == 0
     assert result.result("GRP", "ucrit_set") == pytest.approx(40.0, rel=1e-9)  # 0.35 + 0.5 · 0.10 m/s
+
+
+def test_each_group_keeps_its_phases_up_to_its_own_fatigue():
+    # Two groups in two chambers, each fatigued by its own first fish (no protocol fatigue time):
+    # group A half way through step 4, group B half way through step 6. B's phases in step 5
+    # come after A's fatigue but before B's, and stay on B's curve. Brett (1964) by hand:
+    # A 0.35 + 0.5 · 0.10 = 0.40 m/s, B 0.55 + 0.5 · 0.10 = 0.60 m/s on set speeds.
+    trial = sim.simulate_trial(
+        seed=13, channels=("A", "B"), speeds_m_s=(0.05, *SPEEDS), step_duration_s=(REST_S,) + (STEP_S,) * len(SPEEDS),
+        flush_s=240, wait_s=60, measure_s=600, respirometer_volume_l=VOLUME_L, fish_mass_g=sum(MASSES),
+        mo2_model="exponential", mo2_params=(A_TRUE, B_TRUE), sensor_noise_pct=0.1, background_rate_mg_l_h=0.03,
+    )
+    sha = sha256_hex(trial.csv_bytes)
+    fish = [_fish(i, m) for i, m in enumerate(MASSES)] + [_fish(4 + i, m, "B") for i, m in enumerate(MASSES)]
+    groups = [{"group_id": "GA", "chamber": "A", "fish_ids": ["G0", "G1", "G2", "G3"], "fatigue_definition": "first_fish"},
+              {"group_id": "GB", "chamber": "B", "fish_ids": ["G4", "G5", "G6", "G7"], "fatigue_definition": "first_fish"}]
+    t_a, t_b = REST_S + 3.5 * STEP_S, REST_S + 5.5 * STEP_S
+    events = [{"time_s": t_a, "kind": "fatigue", "fish_id": "G1"}, {"time_s": t_b, "kind": "fatigue", "fish_id": "G6"}]
+    blanks = [{"channel": ch, "time_s": b.time_s, "slope_mg_l_h": b.slope_mg_l_s * 3600.0}
+              for ch in ("A", "B") for b in trial.truth.blanks if b.channel == ch]
+    session = Session.from_json_dict(_doc(sha, fish=fish, groups=groups, fatigue_time_s=None, events=events,
+                                          blanks=blanks))
+    result = analyse(session, {sha: trial.csv_bytes}, n_boot=20)
+    m = result.measure
+    mid = (m["start_s"] + m["end_s"]) / 2
+    in_a, in_b = m["fish_id"] == "GA", m["fish_id"] == "GB"
+    assert (m.loc[in_a & (mid > t_a), "step"] == -1).all()
+    assert (m.loc[in_b & (mid > t_a) & (mid < t_b - STEP_S / 2), "step"] > 0).any()
+    steps = result.steps.set_index(["fish_id", "step"])
+    assert steps.loc[("GA", 5), "n_phases"] == 0 and steps.loc[("GB", 5), "n_phases"] > 0
+    assert result.result("GA", "ucrit_set") == pytest.approx(40.0, rel=1e-9)
+    assert result.result("GB", "ucrit_set") == pytest.approx(60.0, rel=1e-9)
