@@ -18,7 +18,6 @@ stays responsive. Numbers depend on the machine; this one has 2 cores.
 
 from __future__ import annotations
 
-import hashlib
 import os
 import statistics
 import sys
@@ -35,15 +34,10 @@ N_RUNS = 7
 
 def _typical_session(hours: float = 6.0, n_steps: int = 10) -> tuple[dict, str, bytes]:
     """A 10-step session whose trace lasts ``hours`` at 1 Hz, with its simulated logger file."""
-    from browser_support import logger_file, typical_session
-
-    from swimlab.io import logger
+    from browser_support import attach_logger_file, typical_session
 
     data = typical_session(n_steps=n_steps, step_min=hours * 60.0 / n_steps)
-    name, raw = logger_file(data, seed=5)
-    sha = hashlib.sha256(raw).hexdigest()
-    data["raw_files"] = [{"sha256": sha, "name": name, "role": "trial",
-                          "mapping": logger.guess_mapping(raw, name=name).to_dict()}]
+    sha, raw = attach_logger_file(data, seed=5)
     return data, sha, raw
 
 
