@@ -561,7 +561,7 @@ def _steps(session, steps_sched, measure, water_props, section_area, calibration
             if unit.is_group:  # solid blocking of several bodies, additive to first order (see _groups)
                 eps = sum(float(flume.solid_blocking(f.total_length_cm * CM, f.body_depth_cm * CM,
                                                      f.body_width_cm * CM, section_area)) for f in unit.fish)
-                corrected = np.asarray(set_speed, dtype=float) * (1.0 + eps)
+                corrected = np.asarray(flume.speed_at_fish(set_speed, eps), dtype=float)
                 length = unit.total_length_cm * CM
             else:
                 corrected = np.asarray(flume.corrected_speed(set_speed, length, depth, width, section_area), dtype=float)

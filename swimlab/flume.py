@@ -45,6 +45,7 @@ __all__ = [
     "frontal_area",
     "section_area",
     "solid_blocking",
+    "speed_at_fish",
 ]
 
 SECTION_SHAPES = ("rectangular", "circular")
@@ -256,13 +257,31 @@ def corrected_speed(
     -----
     Bell & Terhune (1970); see :func:`solid_blocking`.
     """
-    u_t = _validate.non_negative("set_speed", set_speed, "m/s")
-    eps = np.asarray(
-        solid_blocking(body_length, body_depth, body_width, section_area, method, thickness=thickness)
-    )
+    eps = solid_blocking(body_length, body_depth, body_width, section_area, method, thickness=thickness)
     return _validate.like_input(
-        u_t * (1.0 + eps), set_speed, body_length, body_depth, body_width, section_area
+        np.asarray(speed_at_fish(set_speed, eps), dtype=float), set_speed, body_length, body_depth,
+        body_width, section_area,
     )
+
+
+def speed_at_fish(set_speed: Any, epsilon: Any) -> Any:
+    """Water speed at the fish from the set speed and a known solid-blocking correction.
+
+    Parameters
+    ----------
+    set_speed
+        Speed of the empty working section, U_T. [m/s]
+    epsilon
+        Fractional speed increase ε_s (:func:`solid_blocking`; for several fish in one section,
+        the sum of theirs). [-]
+
+    Returns
+    -------
+    U_F = U_T (1 + ε_s). [m/s]
+    """
+    u_t = _validate.non_negative("set_speed", set_speed, "m/s")
+    eps = _validate.non_negative("epsilon", epsilon, "-")
+    return _validate.like_input(u_t * (1.0 + eps), set_speed, epsilon)
 
 
 @dataclass(frozen=True)

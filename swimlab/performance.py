@@ -1682,6 +1682,17 @@ class GroupCurve:
         u = _validate.non_negative("speed", speed, "m/s")
         return _validate.like_input(self.a * np.exp(self.b * u), speed)
 
+    def predict_fish(self, fish_id: str, speed: Any) -> Any:
+        """One fish's curve of the mixed model (fixed plus its random effects) at ``speed``
+        [m/s]; returns [mg O2 kg⁻¹ h⁻¹]."""
+        row = self.per_fish[self.per_fish["fish_id"].astype(str) == str(fish_id)]
+        if row.empty:
+            raise InputError(f"fish {fish_id!r} is not in the group curve; fish are "
+                             f"{sorted(self.per_fish['fish_id'].astype(str))}", field="fish_id")
+        u = _validate.non_negative("speed", speed, "m/s")
+        a, b = float(row["a_mixed"].iloc[0]), float(row["b_mixed"].iloc[0])
+        return _validate.like_input(a * np.exp(b * u), speed)
+
 
 _GROUP_COLUMNS = ("fish_id", "speed_m_s", "mo2_mg_kg_h")
 

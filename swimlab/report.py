@@ -2607,11 +2607,9 @@ def _group_figure(data: pd.DataFrame, curve: Any):
         colour = plots.CHANNEL_COLOURS[i % len(plots.CHANNEL_COLOURS)]
         fig.add_trace(go.Scatter(x=grp["speed_m_s"] * 100, y=grp["mo2_mg_kg_h"], mode="markers", name=fid,
                                  marker={"size": 5, "color": colour, "opacity": 0.6}, legendgroup=fid))
-        row = curve.per_fish[curve.per_fish["fish_id"] == fid]
-        if len(row):
-            a, b = float(row["a_mixed"].iloc[0]), float(row["b_mixed"].iloc[0])
-            fig.add_trace(go.Scatter(x=grid * 100, y=a * np.exp(b * grid), mode="lines", showlegend=False,
-                                     line={"color": colour, "width": 1}, legendgroup=fid))
+        if (curve.per_fish["fish_id"] == fid).any():
+            fig.add_trace(go.Scatter(x=grid * 100, y=np.asarray(curve.predict_fish(fid, grid)), mode="lines",
+                                     showlegend=False, line={"color": colour, "width": 1}, legendgroup=fid))
     fig.add_trace(go.Scatter(x=grid * 100, y=np.asarray(curve.predict(grid)), mode="lines", name="population curve",
                              line={"color": "#111", "width": 3}))
     fig.update_layout(xaxis={"title": "Corrected speed [cm/s]", "rangemode": "tozero"},

@@ -206,3 +206,13 @@ def test_bad_calibrations():
         flume.fit_speed_calibration([1, 2, 3], [0.1, -0.1, 0.3])
     with pytest.raises(ValueError, match="unknown degree 4"):
         flume.fit_speed_calibration(SETTINGS, SPEEDS, degree=4)
+
+
+def test_speed_at_fish_is_the_set_speed_raised_by_the_blocking_correction():
+    # U_F = U_T (1 + ε_s) (Bell & Terhune 1970, as in solid_blocking): the corrected speed of a
+    # fish is the speed at the fish with its own ε_s; several fish add their ε_s.
+    eps = flume.solid_blocking(0.30, 0.06, 0.03, 0.04)
+    assert flume.speed_at_fish(0.5, eps) == pytest.approx(flume.corrected_speed(0.5, 0.30, 0.06, 0.03, 0.04))
+    assert flume.speed_at_fish(0.5, 0.02 + 0.03) == pytest.approx(0.525)
+    with pytest.raises(InputError, match="epsilon"):
+        flume.speed_at_fish(0.5, -0.01)

@@ -724,6 +724,24 @@ def test_group_curve_recovers_population_parameters_with_random_slopes():
     assert row["a_own"] == pytest.approx(math.exp(ols.params["const"]), rel=1e-9)
 
 
+def test_each_fish_curve_of_the_group_model_equals_statsmodels_fitted_values():
+    # statsmodels' MixedLM fitted values include each fish's predicted random effects (an outside
+    # implementation, fitted here with the same model and call as group_curve).
+    from statsmodels.regression.mixed_linear_model import MixedLM
+
+    table = group_table(10, seed=1)
+    curve = perf.group_curve(table)
+    data = table.assign(ln_mo2=np.log(table["mo2_mg_kg_h"]))
+    result = MixedLM.from_formula("ln_mo2 ~ speed_m_s", data=data, groups=data["fish_id"],
+                                  re_formula="~speed_m_s").fit(reml=True, method=["lbfgs", "powell"])
+    one = data["fish_id"] == "F03"
+    expected = np.exp(np.asarray(result.fittedvalues)[one.to_numpy()])
+    got = curve.predict_fish("F03", data.loc[one, "speed_m_s"].to_numpy())
+    np.testing.assert_allclose(got, expected, rtol=1e-6)
+    with pytest.raises(InputError, match="not in the group curve"):
+        curve.predict_fish("F99", 0.5)
+
+
 def test_balanced_random_intercept_slope_equals_pooled_ols():
     # Known result (e.g. Searle, Casella & McCulloch 1992, from memory): with random intercepts
     # and the same speeds for every fish, the GLS slope equals the pooled OLS slope.
